@@ -1,0 +1,30 @@
+"""pkwidgets: non-compartmental pharmacokinetic analysis for Jupyter.
+
+Results support qualified review; follow local regulations and SOPs.
+"""
+
+from .blq import BLQRules
+from .engine import ArrayResult, nca_arrays
+from .errors import InputDataError, UnitError
+from .parameters import PARAMETERS, parameter_table, partial_code
+from .profile import nca_profile, partial_auc
+from .qc import FLAGS, QCThresholds
+from .units import StudyUnits
+
+__version__ = "0.1.0"
+
+__all__ = [
+    "ArrayResult",
+    "BLQRules",
+    "FLAGS",
+    "InputDataError",
+    "PARAMETERS",
+    "QCThresholds",
+    "StudyUnits",
+    "UnitError",
+    "nca_arrays",
+    "nca_profile",
+    "parameter_table",
+    "partial_auc",
+    "partial_code",
+]

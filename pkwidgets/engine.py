@@ -1,0 +1,584 @@
+r"""The array engine: NCA of many profiles at once.
+
+:func:`nca_arrays` takes profiles x samples arrays (NaN-padded when profiles
+have different numbers of samples) and returns one array per parameter.
+:func:`pkwidgets.nca_profile` and :func:`pkwidgets.nca` are thin layers over
+it, so a single profile, a study and a million simulated profiles go through
+the same arithmetic.
+
+Steps, per chunk of profiles, all vectorised:
+
+1. classify each sample (missing, before dose, BLQ by position) and apply
+   the BLQ rules (:mod:`pkwidgets.blq`);
+2. add the dose-time point where none was sampled (0 for an extravascular
+   single dose or an infusion, CMIN of the interval at steady state, C0 for
+   an IV bolus);
+3. sort by time and move unusable samples to the end of each row;
+4. CMAX, TMAX, CLST, TLST, TLAG; segment areas (:mod:`pkwidgets.auc`) and
+   their running sums give AUCLST, AUCALL, AUMCLST;
+5. the lambda-z search (:mod:`pkwidgets.lambda_z`) and everything derived
+   from it; IV, steady-state and partial-AUC parameters;
+6. QC flags (:mod:`pkwidgets.qc`) and, for every input sample, its status.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from .auc import area_to, check_method, segment_areas, segment_is_log
+from .blq import BLQRules
+from .lambda_z import fit_lambda_z
+from .parameters import partial_code
+from .qc import FLAGS, QCThresholds, SampleStatus
+
+__all__ = ["nca_arrays", "ArrayResult", "ROUTES"]
+
+ROUTES = ("extravascular", "iv-bolus", "iv-infusion")
+_LN2 = np.log(2.0)
+#: Profiles per chunk: keeps temporaries in cache and memory bounded.
+CHUNK = 32768
+
+
+class ArrayResult(dict):
+    """Parameters as ``{PPTESTCD: 1-D array over profiles}``, plus the details.
+
+    Attributes
+    ----------
+    flags : dict of str to ndarray of bool
+        Per-profile QC flags (names in :data:`pkwidgets.qc.FLAGS`).
+    status : ndarray of int8, shape (profiles, samples)
+        What happened to each input sample (:class:`pkwidgets.qc.SampleStatus`).
+    lambda_z_used : ndarray of bool, shape (profiles, samples)
+        Input samples used in the lambda-z fit.
+    settings : dict
+        The options the result was computed with.
+    """
+
+    flags: dict
+    status: np.ndarray
+    lambda_z_used: np.ndarray
+    settings: dict
+
+
+@dataclass
+class _Options:
+    route: str
+    method: str
+    rules: BLQRules
+    qc: QCThresholds
+
+
+def _as_2d(a, name):
+    a = np.asarray(a, dtype=np.float64)
+    if a.ndim == 1:
+        a = a[None, :]
+    if a.ndim != 2:
+        raise ValueError(f"{name} must be 1-D (one profile) or 2-D (profiles x samples); got {a.ndim}-D.")
+    return a
+
+
+def _per_profile(value, P, name, *, positive=False, allow_none=True):
+    """Broadcast a scalar or a (profiles,) array to (profiles,) floats; None -> NaN."""
+    if value is None:
+        if not allow_none:
+            raise ValueError(f"{name} is required.")
+        return np.full(P, np.nan)
+    try:
+        a = np.asarray(value, dtype=np.float64)
+    except (TypeError, ValueError):
+        raise TypeError(f"{name} must be a number or an array of numbers; got {value!r}.") from None
+    if a.ndim == 0:
+        a = np.full(P, float(a))
+    if a.shape != (P,):
+        raise ValueError(f"{name} must be a scalar or have one value per profile ({P}); got shape {a.shape}.")
+    if positive:
+        bad = np.flatnonzero(~np.isnan(a) & ~(a > 0) | np.isinf(a))
+        if bad.size:
+            raise ValueError(f"{name} must be positive and finite; profile {bad[0]} has {float(a[bad[0]])!r}.")
+    return a
+
+
+def _per_sample(value, shape, name, dtype):
+    if value is None:
+        return np.zeros(shape, dtype=dtype) if dtype is bool else np.full(shape, np.nan)
+    a = np.asarray(value, dtype=dtype)
+    if a.ndim == 1 and shape[0] == 1 and a.shape[0] == shape[1]:
+        a = a[None, :]
+    elif a.ndim == 1 and a.shape[0] == shape[0]:
+        a = a[:, None]
+    try:
+        return np.broadcast_to(a, shape)
+    except ValueError:
+        raise ValueError(f"{name} has shape {np.shape(value)}, which does not fit samples of shape {shape}.") from None
+
+
+def _validate(t, c, blq):
+    """Errors for values no rule can interpret; positions are (profile, sample)."""
+    def first(mask):
+        p, s = np.argwhere(mask)[0]
+        return int(p), int(s)
+
+    if np.isinf(t).any():
+        p, s = first(np.isinf(t))
+        raise ValueError(f"time is infinite at profile {p}, sample {s}; give a finite time or drop the sample.")
+    given = ~np.isnan(c) | blq
+    no_time = np.isnan(t) & given
+    if no_time.any():
+        p, s = first(no_time)
+        raise ValueError(f"time is missing at profile {p}, sample {s} although a concentration is given.")
+    if np.isinf(c).any():
+        p, s = first(np.isinf(c))
+        raise ValueError(f"conc is infinite at profile {p}, sample {s}.")
+    with np.errstate(invalid="ignore"):
+        neg = (c < 0) & ~blq
+    if neg.any():
+        p, s = first(neg)
+        raise ValueError(
+            f"conc is negative ({float(c[p, s])!r}) at profile {p}, sample {s}; concentrations must be >= 0 "
+            "(mark values below the limit of quantitation with blq=True instead)."
+        )
+    ts = np.sort(t, axis=1)
+    dup = (np.diff(ts, axis=1) == 0)
+    if dup.any():
+        p, s = first(dup)
+        raise ValueError(
+            f"time {float(ts[p, s])!r} appears twice in profile {p}; each profile needs distinct sampling times "
+            "(average replicates or drop one)."
+        )
+
+
+def _parse_terminal(terminal, P):
+    """Return (lo, hi) arrays; NaN where the search is automatic."""
+    lo = np.full(P, np.nan)
+    hi = np.full(P, np.nan)
+    if terminal is None or (isinstance(terminal, str) and terminal == "auto"):
+        return lo, hi
+    if isinstance(terminal, str):
+        raise ValueError(f"terminal must be 'auto', a (start, end) pair or an array of pairs; got {terminal!r}.")
+    a = np.asarray(terminal, dtype=np.float64)
+    if a.shape == (2,):
+        a = np.broadcast_to(a, (P, 2))
+    if a.shape != (P, 2):
+        raise ValueError(f"terminal must be 'auto', (start, end) or an array of shape ({P}, 2); got shape {a.shape}.")
+    bad = np.flatnonzero(~(a[:, 1] > a[:, 0]) & ~np.isnan(a).any(axis=1))
+    if bad.size:
+        raise ValueError(f"terminal window must have end > start; profile {bad[0]} has {tuple(a[bad[0]].tolist())}.")
+    return a[:, 0].copy(), a[:, 1].copy()
+
+
+def _parse_partial(partial, P):
+    """List of (name, start array, end array)."""
+    items = partial.items() if isinstance(partial, dict) else ((None, iv) for iv in partial)
+    out = []
+    for name, iv in items:
+        try:
+            start, end = iv
+        except (TypeError, ValueError):
+            raise ValueError(f"each partial interval must be a (start, end) pair; got {iv!r}.") from None
+        s = _per_profile(start, P, "partial start", allow_none=False)
+        e = _per_profile(end, P, "partial end", allow_none=False)
+        if name is None:
+            if np.ndim(start) or np.ndim(end):
+                raise ValueError("partial intervals with per-profile ends need names: pass a dict {name: (start, end)}.")
+            name = partial_code(float(start), float(end))
+        if np.any(s < 0) or np.any(~(e > s)):
+            raise ValueError(f"partial interval {name}: need 0 <= start < end; got ({start}, {end}).")
+        out.append((name, s, e))
+    return out
+
+
+def nca_arrays(
+    time,
+    conc,
+    *,
+    dose=None,
+    route="extravascular",
+    duration=None,
+    tau=None,
+    auc_method="linear",
+    terminal="auto",
+    exclude=None,
+    blq=None,
+    lloq=None,
+    partial=(),
+    blq_rules=None,
+    qc=None,
+):
+    r"""Non-compartmental parameters of many profiles at once.
+
+    Parameters
+    ----------
+    time : array_like, shape (profiles, samples) or (samples,)
+        Sampling times after the dose, in one unit.  Ragged profiles are
+        padded with NaN (time and conc both NaN).  Negative times are
+        pre-dose samples: they are reported, not used.
+    conc : array_like, same shape
+        Concentrations, >= 0; NaN where missing.
+    dose : float or array_like (profiles,), optional
+        Dose amount; needed for clearance, volume and dose-normalised values.
+    route : {"extravascular", "iv-bolus", "iv-infusion"}
+    duration : float or array_like, optional
+        Infusion duration (required for ``"iv-infusion"``).
+    tau : float or array_like, optional
+        Dosing interval: adds AUCTAU, CMIN, CTROUGH, CAVG, FLUCP, SWING,
+        CLFTAU/CLTAU and AILAMZ.
+    auc_method : {"linear", "lin-up/log-down", "lin-log"}
+    terminal : "auto", (start, end) or array_like (profiles, 2)
+        Lambda-z window; rows of NaN mean automatic.
+    exclude : array_like of bool, same shape as ``time``, optional
+        Samples left out of the lambda-z fit (they still enter the AUC).
+    blq : array_like of bool, same shape, optional
+        True where the sample is below the LLOQ; its conc value is ignored.
+    lloq : float or array_like, optional
+        Lower limit of quantitation; needed by the ``"half-lloq"`` and
+        ``"lloq"`` BLQ rules.
+    partial : sequence of (start, end) or dict of name -> (start, end)
+        Partial AUC intervals after the dose (see :func:`pkwidgets.partial_auc`).
+    blq_rules : BLQRules or dict, optional
+    qc : QCThresholds, optional
+
+    Returns
+    -------
+    ArrayResult
+        ``dict`` of PPTESTCD code -> 1-D float array over profiles (NaN where
+        a value cannot be computed), with ``flags``, ``status``,
+        ``lambda_z_used`` and ``settings`` attributes.
+
+    Raises
+    ------
+    ValueError
+        For shapes that do not match, infinite or negative values, duplicate
+        times within a profile, missing LLOQ where a BLQ rule needs it, or an
+        unknown option.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> t = np.array([0.5, 1, 2, 4, 8, 12, 24])
+    >>> c = 100 * np.exp(-0.1 * t)
+    >>> r = nca_arrays(t, c, dose=1000, route="iv-bolus", auc_method="lin-up/log-down")
+    >>> round(float(r["AUCIFO"][0]), 6)   # Dose / CL = 1000 / 1
+    1000.0
+    >>> nca_arrays([0, 1, 1], [0, 2, 3])
+    Traceback (most recent call last):
+    ...
+    ValueError: time 1.0 appears twice in profile 0; each profile needs distinct sampling times (average replicates or drop one).
+    """
+    t = _as_2d(time, "time")
+    c = _as_2d(conc, "conc")
+    if t.shape != c.shape:
+        raise ValueError(f"time has shape {t.shape} but conc has shape {c.shape}; they must match.")
+    P, N = t.shape
+    if route not in ROUTES:
+        raise ValueError(f"route must be one of {', '.join(map(repr, ROUTES))}; got {route!r}.")
+    opts = _Options(route, check_method(auc_method), BLQRules.coerce(blq_rules), qc or QCThresholds())
+    blq_a = _per_sample(blq, t.shape, "blq", bool)
+    _validate(t, c, blq_a)
+    lloq_a = _per_sample(lloq, t.shape, "lloq", np.float64)
+    excl = _per_sample(exclude, t.shape, "exclude", bool)
+    dose_a = _per_profile(dose, P, "dose", positive=True)
+    dur = _per_profile(duration, P, "duration", positive=True)
+    if route == "iv-infusion" and np.isnan(dur).any():
+        raise ValueError("route 'iv-infusion' needs duration= (the infusion time, in the time unit).")
+    tau_a = _per_profile(tau, P, "tau", positive=True)
+    lo, hi = _parse_terminal(terminal, P)
+    parts = _parse_partial(partial, P)
+
+    pieces = []
+    for s in range(0, P, CHUNK):
+        sl = slice(s, min(P, s + CHUNK))
+        pieces.append(
+            _chunk(t[sl], c[sl], blq_a[sl], lloq_a[sl], excl[sl], dose_a[sl], dur[sl], tau_a[sl],
+                   lo[sl], hi[sl], [(n, a[sl], b[sl]) for n, a, b in parts], opts)
+        )
+    params, flags, status, used = pieces[0] if len(pieces) == 1 else _concat(pieces)
+    out = ArrayResult(params)
+    out.flags = flags
+    out.status = status
+    out.lambda_z_used = used
+    out.settings = {
+        "route": route,
+        "auc_method": auc_method,
+        "blq_rules": opts.rules.as_dict(),
+        "qc": opts.qc.as_dict(),
+        "partial": [name for name, _, _ in parts],
+    }
+    return out
+
+
+def _concat(pieces):
+    params = {k: np.concatenate([p[0][k] for p in pieces]) for k in pieces[0][0]}
+    flags = {k: np.concatenate([p[1][k] for p in pieces]) for k in pieces[0][1]}
+    status = np.concatenate([p[2] for p in pieces])
+    used = np.concatenate([p[3] for p in pieces])
+    return params, flags, status, used
+
+
+def _rule_value(rule, lloq, where_mask, position):
+    if rule == "zero":
+        return np.zeros_like(lloq)
+    if rule == "missing":
+        return np.full_like(lloq, np.nan)
+    need = where_mask & np.isnan(lloq)
+    if need.any():
+        p, s = np.argwhere(need)[0]
+        raise ValueError(
+            f"BLQ rule {position}={rule!r} needs the LLOQ, but profile {p}, sample {s} has none; "
+            "pass lloq= (a number, or one per profile or sample)."
+        )
+    return lloq * (0.5 if rule == "half-lloq" else 1.0)
+
+
+def _take(a, idx):
+    return np.take_along_axis(a, idx[:, None], axis=1)[:, 0]
+
+
+def _chunk(t, c, blq, lloq, excl, dose, dur, tau, lo, hi, parts, o):  # noqa: C901 - one pass, in steps
+    P, N = t.shape
+    rows = np.arange(P)
+    S = SampleStatus
+    status = np.zeros((P, N), dtype=np.int8)
+    flags = {name: np.zeros(P, dtype=bool) for name in FLAGS}
+    is_ss = ~np.isnan(tau)
+    bolus = o.route == "iv-bolus"
+
+    # 1. classify samples, apply BLQ rules ----------------------------------
+    present = ~np.isnan(t)
+    status[~present] = S.PADDING
+    before_dose = present & (t < 0)
+    status[before_dose] = S.BEFORE_DOSE
+    usable_t = present & ~before_dose
+    missing = usable_t & np.isnan(c) & ~blq
+    status[missing] = S.MISSING_CONC
+    isblq = usable_t & blq
+    with np.errstate(invalid="ignore"):
+        meas = usable_t & ~blq & (c > 0)
+    t_first = np.min(np.where(meas, t, np.inf), axis=1)[:, None]
+    t_last = np.max(np.where(meas, t, -np.inf), axis=1)[:, None]
+    value = np.where(blq, np.nan, c)
+    for position, mask, code in (
+        ("before", isblq & (t < t_first), S.BLQ_MISSING_BEFORE),
+        ("after", isblq & (t > t_last) & np.isfinite(t_last), S.BLQ_MISSING_AFTER),
+        ("between", isblq & (t > t_first) & (t < t_last), S.BLQ_MISSING_BETWEEN),
+    ):
+        rule = getattr(o.rules, position)
+        value = np.where(mask, _rule_value(rule, lloq, mask, position), value)
+        if rule == "missing":
+            status[mask] = code
+    usable = usable_t & ~np.isnan(value)
+
+    # 2. dose-time point ------------------------------------------------------
+    at0 = usable & (t == 0)
+    ctrough = np.where(at0.any(axis=1), np.max(np.where(at0, value, -np.inf), axis=1), np.nan)
+    with np.errstate(invalid="ignore"):
+        in_tau = usable & (t <= tau[:, None])
+    cmin_tau = np.min(np.where(in_tau, value, np.inf), axis=1)
+    cmin_tau = np.where(np.isfinite(cmin_tau), cmin_tau, np.nan)
+    if bolus:
+        status[at0] = S.BOLUS_PREDOSE
+        usable &= ~at0
+        c0, declining = _bolus_c0(t, value, usable)
+        need0 = np.ones(P, dtype=bool)
+        flags["c0_extrapolated"] = declining
+        flags["c0_first_observed"] = ~declining & ~np.isnan(c0)
+    else:
+        need0 = ~at0.any(axis=1)
+        c0 = np.where(is_ss, cmin_tau, 0.0)
+        flags["time0_added"] = need0 & ~is_ss
+        flags["predose_imputed"] = need0 & is_ss
+
+    # 3. sort, compact --------------------------------------------------------
+    T = np.concatenate([np.zeros((P, 1)), t], axis=1)
+    V = np.concatenate([c0[:, None], value], axis=1)
+    U = np.concatenate([need0[:, None] & ~np.isnan(c0)[:, None], usable], axis=1)
+    X = np.concatenate([np.zeros((P, 1), dtype=bool), excl], axis=1)
+    key = np.where(U, T, np.inf)
+    order = np.argsort(key, axis=1, kind="stable")
+    flags["times_sorted"] = (np.diff(np.where(usable, t, np.nan), axis=1) < 0).any(axis=1) | (
+        np.diff(np.where(present, t, np.inf), axis=1) < 0
+    ).any(axis=1)
+    Ts = np.take_along_axis(T, order, axis=1)
+    Vs = np.take_along_axis(V, order, axis=1)
+    Us = np.take_along_axis(U, order, axis=1)
+    Xs = np.take_along_axis(X, order, axis=1)
+    added = order == 0
+    Ts = np.where(Us, Ts, np.nan)
+    Vs = np.where(Us, Vs, np.nan)
+    nvalid = Us.sum(axis=1)
+    M = N + 1
+    cols = np.arange(M)
+
+    # 4. peak, last, lag ------------------------------------------------------
+    obs = Us & ~added
+    with np.errstate(invalid="ignore"):
+        peak_pool = obs & np.where(is_ss[:, None], Ts <= tau[:, None], True)
+        positive = obs & (Vs > 0)
+    i_max = np.argmax(np.where(peak_pool, Vs, -np.inf), axis=1)
+    # a profile needs one measured (not substituted) positive concentration
+    has_pos = positive.any(axis=1) & meas.any(axis=1)
+    CMAX = np.where(has_pos, _take(Vs, i_max), np.nan)
+    TMAX = np.where(has_pos, _take(Ts, i_max), np.nan)
+    i_last = M - 1 - np.argmax(positive[:, ::-1], axis=1)
+    CLST = np.where(has_pos, _take(Vs, i_last), np.nan)
+    TLST = np.where(has_pos, _take(Ts, i_last), np.nan)
+    i_first = np.argmax(positive, axis=1)
+    TLAG = np.where(i_first > 0, _take(Ts, np.maximum(i_first - 1, 0)), 0.0)
+    TLAG = np.where(has_pos & (o.route == "extravascular"), TLAG, np.nan)
+
+    # segments and running areas
+    t1, t2, c1, c2 = Ts[:, :-1], Ts[:, 1:], Vs[:, :-1], Vs[:, 1:]
+    seg_ok = Us[:, 1:]
+    t_switch = np.zeros(P) if bolus else TMAX
+    is_log = segment_is_log(t1, c1, c2, o.method, t_switch[:, None]) & seg_ok
+    a_seg, m_seg = segment_areas(t1, t2, c1, c2, is_log)
+    zeros = np.zeros((P, 1))
+    A = np.concatenate([zeros, np.cumsum(np.where(seg_ok, a_seg, 0.0), axis=1)], axis=1)
+    Mm = np.concatenate([zeros, np.cumsum(np.where(seg_ok, m_seg, 0.0), axis=1)], axis=1)
+    AUCLST = np.where(has_pos, _take(A, i_last), np.nan)
+    AUMCLST = np.where(has_pos, _take(Mm, i_last), np.nan)
+    AUCALL = np.where(has_pos, _take(A, np.maximum(nvalid - 1, 0)), np.nan)
+
+    # 5. lambda z -------------------------------------------------------------
+    manual = ~np.isnan(lo)
+    after_peak = cols[None, :] >= i_max[:, None] + (0 if bolus else 1)
+    cand_auto = positive & ~Xs & after_peak & (cols[None, :] <= i_last[:, None])
+    with np.errstate(invalid="ignore"):
+        eps = 1e-9 * np.maximum(1.0, np.abs(hi))[:, None]
+        cand_man = positive & ~Xs & (Ts >= lo[:, None] - eps) & (Ts <= hi[:, None] + eps)
+    cand = np.where(manual[:, None], cand_man, cand_auto)
+    fit = fit_lambda_z(Ts, Vs, cand, manual)
+    LAMZ = np.where(has_pos, fit.lamz, np.nan)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        LAMZHL = _LN2 / LAMZ
+        CLSTP = np.exp(fit.intercept - LAMZ * TLST)
+        AUCIFO = AUCLST + CLST / LAMZ
+        AUCIFP = AUCLST + CLSTP / LAMZ
+        AUCPEO = 100.0 * (AUCIFO - AUCLST) / AUCIFO
+        AUCPEP = 100.0 * (AUCIFP - AUCLST) / AUCIFP
+        AUMCIFO = AUMCLST + CLST * TLST / LAMZ + CLST / LAMZ**2
+        AUMCPEO = 100.0 * (AUMCIFO - AUMCLST) / AUMCIFO
+        LAMZSPN = (fit.t_last - fit.t_first) / LAMZHL
+        mrt_lst = AUMCLST / AUCLST
+        mrt_ifo = AUMCIFO / AUCIFO
+
+    p = {
+        "CMAX": CMAX, "TMAX": TMAX, "CLST": CLST, "TLST": TLST,
+        "AUCLST": AUCLST, "AUCALL": AUCALL, "AUCIFO": AUCIFO, "AUCIFP": AUCIFP,
+        "AUCPEO": AUCPEO, "AUCPEP": AUCPEP, "AUMCLST": AUMCLST, "AUMCIFO": AUMCIFO,
+        "AUMCPEO": AUMCPEO,
+        "LAMZ": LAMZ, "LAMZHL": LAMZHL, "LAMZNPT": fit.npoints.astype(np.float64),
+        "LAMZLL": fit.t_first, "LAMZUL": fit.t_last, "LAMZSPN": LAMZSPN,
+        "R2": fit.r2, "R2ADJ": fit.r2adj, "CORRXY": fit.corr, "CLSTP": CLSTP,
+    }
+    with np.errstate(divide="ignore", invalid="ignore"):
+        if o.route == "extravascular":
+            p.update(TLAG=TLAG, MRTEVLST=mrt_lst, MRTEVIFO=mrt_ifo,
+                     CLFO=dose / AUCIFO, CLFP=dose / AUCIFP,
+                     VZFO=dose / (LAMZ * AUCIFO), VZFP=dose / (LAMZ * AUCIFP))
+        else:
+            half = np.where(np.isnan(dur), 0.0, dur / 2.0)
+            mrt_ifo_iv = mrt_ifo - half
+            clo = dose / AUCIFO
+            p.update(MRTIVLST=mrt_lst - half, MRTIVIFO=mrt_ifo_iv, CLO=clo, CLP=dose / AUCIFP,
+                     VZO=dose / (LAMZ * AUCIFO), VZP=dose / (LAMZ * AUCIFP), VSSO=mrt_ifo_iv * clo)
+            if bolus:
+                p["C0"] = np.where(has_pos, c0, np.nan)
+                p["AUCPBEO"] = 100.0 * A[:, 1] / AUCIFO
+        p.update(CMAXD=CMAX / dose, AUCLSTD=AUCLST / dose, AUCIFOD=AUCIFO / dose)
+
+    cum = _Cumulative(Ts, Vs, Us, A, is_log, TLST, CLST, AUCLST, LAMZ)
+
+    # steady state ------------------------------------------------------------
+    if is_ss.any():
+        auctau, tau_extrap = cum.at(tau)
+        CMIN = np.where(has_pos & is_ss, cmin_tau, np.nan)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            CAVG = auctau / tau
+            p.update(
+                AUCTAU=auctau, CMIN=CMIN, CTROUGH=np.where(is_ss, ctrough, np.nan), CAVG=CAVG,
+                FLUCP=100.0 * (CMAX - CMIN) / CAVG, SWING=(CMAX - CMIN) / CMIN,
+                AILAMZ=1.0 / (1.0 - np.exp(-LAMZ * tau)),
+            )
+            p["CLFTAU" if o.route == "extravascular" else "CLTAU"] = dose / auctau
+        flags["tau_extrapolated"] = tau_extrap & is_ss
+
+    # partial areas -------------------------------------------------------------
+    for name, start, end in parts:
+        a_end, ext_end = cum.at(end)
+        a_start, ext_start = cum.at(start)
+        p[name] = a_end - a_start
+        flags["partial_extrapolated"] |= ext_end | ext_start
+
+    # 6. flags and sample status ---------------------------------------------------
+    nofit = has_pos & np.isnan(LAMZ)
+    qc = o.qc
+    with np.errstate(invalid="ignore"):
+        flags["no_measurable"] = ~has_pos
+        flags["no_lambda_z"] = nofit
+        flags["few_points"] = has_pos & ~nofit & (fit.npoints < qc.min_points)
+        flags["r2adj_low"] = (fit.r2adj < qc.min_r2adj)
+        flags["extrapolation_high"] = AUCPEO > qc.max_extrapolated_pct
+        flags["span_short"] = LAMZSPN < qc.min_span
+        predose = np.where(bolus | is_ss, np.nan, ctrough)
+        flags["predose_high"] = predose > qc.max_predose_pct / 100.0 * CMAX
+    flags["manual_terminal"] = manual
+    flags["points_excluded"] = (excl & usable).any(axis=1)
+    for k in p:
+        p[k] = np.where(has_pos, p[k], np.nan)
+
+    # status and fit mask back in input order
+    src = order - 1  # input column of each sorted column; -1 = added point
+    with np.errstate(invalid="ignore"):
+        after_last = Us & (Ts > TLST[:, None]) & ~added
+    used_in = np.zeros((P, N), dtype=bool)
+    late = np.zeros((P, N), dtype=bool)
+    r, k = np.nonzero((src >= 0) & fit.used)
+    used_in[r, src[r, k]] = True
+    r, k = np.nonzero((src >= 0) & after_last)
+    late[r, src[r, k]] = True
+    status[late & (status == S.USED)] = S.AFTER_TLAST
+    status[~has_pos[:, None] & (status == S.USED) & present] = S.NO_MEASURABLE
+    return p, flags, status, used_in
+
+
+def _bolus_c0(t, value, usable):
+    """Back-extrapolated C0 from the first two post-dose samples (log-linear) when they decline."""
+    P, N = t.shape
+    key = np.where(usable & (t > 0), t, np.inf)
+    o = np.argsort(key, axis=1, kind="stable")[:, :2]
+    t12 = np.take_along_axis(t, o, axis=1)
+    c12 = np.take_along_axis(value, o, axis=1)
+    ok = np.take_along_axis(usable & (t > 0), o, axis=1)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        declining = ok[:, 1] & (c12[:, 1] < c12[:, 0]) & (c12[:, 1] > 0)
+        slope = (np.log(c12[:, 1]) - np.log(c12[:, 0])) / (t12[:, 1] - t12[:, 0])
+        back = np.exp(np.log(c12[:, 0]) - slope * t12[:, 0])
+    first = np.where(ok[:, 0], c12[:, 0], np.nan)
+    return np.where(declining, back, first), declining
+
+
+class _Cumulative:
+    """AUC from dose time to any time x: interpolated inside the data, lambda-z beyond TLST."""
+
+    def __init__(self, Ts, Vs, Us, A, is_log, TLST, CLST, AUCLST, LAMZ):
+        self.Ts, self.Vs, self.Us, self.A = Ts, Vs, Us, A
+        self.is_log = np.concatenate([is_log, np.zeros((Ts.shape[0], 1), dtype=bool)], axis=1)
+        self.TLST, self.CLST, self.AUCLST, self.LAMZ = TLST, CLST, AUCLST, LAMZ
+
+    def at(self, x):
+        """Return (area, extrapolated) for x of shape (profiles,); NaN x gives NaN."""
+        Ts, Vs = self.Ts, self.Vs
+        M = Ts.shape[1]
+        with np.errstate(invalid="ignore"):
+            k = np.maximum((self.Us & (Ts <= x[:, None])).sum(axis=1) - 1, 0)
+            k1 = np.minimum(k + 1, M - 1)
+            seg_area, _ = area_to(x, _take(Ts, k), _take(Vs, k), _take(Ts, k1), _take(Vs, k1),
+                                  _take(self.is_log, k))
+            inside = _take(self.A, k) + seg_area
+            extrap = x > self.TLST
+            with np.errstate(over="ignore"):
+                tail = self.AUCLST + self.CLST / self.LAMZ * -np.expm1(-self.LAMZ * (x - self.TLST))
+        area = np.where(extrap, tail, inside)
+        return np.where(np.isnan(x), np.nan, area), extrap
