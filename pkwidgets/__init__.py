@@ -8,6 +8,7 @@ from .engine import ArrayResult, nca_arrays
 from .errors import InputDataError, UnitError
 from .parameters import PARAMETERS, parameter_table, partial_code
 from .profile import nca_profile, partial_auc
+from .table import NCARecord, NCATable, nca
 from .qc import FLAGS, QCThresholds
 from .units import StudyUnits
 
@@ -18,10 +19,13 @@ __all__ = [
     "BLQRules",
     "FLAGS",
     "InputDataError",
+    "NCARecord",
+    "NCATable",
     "PARAMETERS",
     "QCThresholds",
     "StudyUnits",
     "UnitError",
+    "nca",
     "nca_arrays",
     "nca_profile",
     "parameter_table",

@@ -1,0 +1,525 @@
+"""Study tables: :func:`nca` maps a long-format table onto the array engine.
+
+The table layer parses and validates columns (naming file, line and column
+in every error), groups rows into profiles, pads them into profiles x
+samples arrays, calls :func:`pkwidgets.engine.nca_arrays` once, and maps the
+results back: one row per profile, and for every input row whether it was
+used and, if not, why.
+"""
+
+from __future__ import annotations
+
+import os
+import warnings
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+
+from .blq import BLQ_MARKERS, parse_concentrations
+from .engine import nca_arrays
+from .errors import InputDataError
+from .io import LINE, read_study_csv, wrong_delimiter_hint
+from .parameters import PARAMETERS
+from .profile import ordered_codes
+from .qc import FLAGS, STATUS_REASONS, QCThresholds, SampleStatus, flag_message
+from .units import StudyUnits
+
+__all__ = ["nca", "NCATable", "NCARecord"]
+
+_TRUE = {"1", "true", "t", "yes", "y", "blq"}
+_FALSE = {"0", "false", "f", "no", "n", ""}
+_EMPTY = {"", "na", "nan", "."}
+REASON_NO_TIME = "no time and no concentration recorded"
+
+
+@dataclass
+class NCARecord:
+    """Everything about a run besides the parameters.
+
+    Attributes
+    ----------
+    rows : DataFrame
+        Every input row with ``profile`` (index into the result), ``used``
+        (bool), ``reason`` and ``lambda_z`` (bool: in the lambda-z fit).
+    qc_flags : DataFrame
+        One row per raised flag: profile keys, ``flag``, ``severity``, ``message``.
+    settings : dict
+        Options, rules and thresholds used.
+    units : dict
+        Code -> unit text ("" when no units were declared).
+    """
+
+    rows: pd.DataFrame
+    qc_flags: pd.DataFrame
+    settings: dict
+    units: dict = field(default_factory=dict)
+    by: list = field(default_factory=list)
+
+
+class NCATable(pd.DataFrame):
+    """Parameters, one row per profile (``by`` columns first, then PPTESTCD codes).
+
+    A ``pandas.DataFrame`` with the run's record attached:
+
+    - ``.rows``: every input row, used or not, with its reason;
+    - ``.unused``: the rows not used, with their reason;
+    - ``.qc_flags``: reviewer checks raised, one row per profile and flag;
+    - ``.settings``, ``.units``;
+    - ``.to_long()``: one row per profile and parameter, CDISC-style.
+    """
+
+    _metadata = ["_record"]
+
+    @property
+    def _constructor(self):
+        return NCATable
+
+    @property
+    def record(self) -> NCARecord:
+        return self._record
+
+    @property
+    def rows(self) -> pd.DataFrame:
+        return self._record.rows
+
+    @property
+    def unused(self) -> pd.DataFrame:
+        r = self._record.rows
+        return r.loc[~r["used"]]
+
+    @property
+    def qc_flags(self) -> pd.DataFrame:
+        return self._record.qc_flags
+
+    @property
+    def settings(self) -> dict:
+        return self._record.settings
+
+    @property
+    def units(self) -> dict:
+        return self._record.units
+
+    def to_long(self) -> pd.DataFrame:
+        """One row per profile and parameter: keys, PPTESTCD, PPTEST, value, unit, method and rules."""
+        by = self._record.by
+        codes = [c for c in self.columns if c not in by]
+        long = pd.DataFrame(self).melt(id_vars=by, value_vars=codes, var_name="PPTESTCD", value_name="value")
+        long["PPTEST"] = [PARAMETERS[c].name if c in PARAMETERS else _partial_name(c) for c in long["PPTESTCD"]]
+        long["unit"] = long["PPTESTCD"].map(self._record.units).fillna("")
+        s = self._record.settings
+        long["auc_method"] = s["auc_method"]
+        long["blq_rules"] = s["blq_rules_text"]
+        return long[by + ["PPTESTCD", "PPTEST", "value", "unit", "auc_method", "blq_rules"]]
+
+
+def _partial_name(code):
+    a, b = code.split("_", 1)[1].split("-", 1)
+    return f"AUC from T1 to T2 ({a} to {b})"
+
+
+def nca(
+    data,
+    *,
+    by,
+    time="time",
+    conc="conc",
+    dose="dose",
+    blq=None,
+    lloq=None,
+    dose_time=None,
+    units=None,
+    route="extravascular",
+    duration=None,
+    tau=None,
+    auc_method="linear",
+    terminal="auto",
+    exclude=None,
+    blq_rules=None,
+    partial=(),
+    qc=None,
+    sep=",",
+    decimal=".",
+    encoding="utf-8",
+) -> NCATable:
+    """NCA of every profile in a long-format study table.
+
+    Parameters
+    ----------
+    data : DataFrame or path of a CSV file
+        One row per sample.
+    by : str or list of str
+        Columns that identify a profile (subject, period, treatment, analyte, day...).
+    time, conc : str
+        Column names of the sampling time (after the dose, or absolute with
+        ``dose_time``) and the concentration.  Concentration text ``"BLQ"``,
+        ``"<0.50"`` and the other markers in :data:`pkwidgets.blq.BLQ_MARKERS`
+        is read as BLQ (``"<x"`` also gives the LLOQ); other text is an error.
+    dose : str or float or None
+        Dose column (constant within a profile) or one amount for all.  When
+        the default column ``"dose"`` is absent, no dose is used (a warning
+        says so) and CL, V and dose-normalised values are NaN.
+    blq : str, optional
+        Column of BLQ flags (true/false, yes/no, 1/0).
+    lloq : str or float, optional
+        LLOQ column or value.
+    dose_time : str or float, optional
+        Time of the dose on the same clock as ``time``; times are taken relative to it.
+    units : StudyUnits or dict, optional
+        Declared units (``time``, ``conc``, ``dose``); values are then
+        reported in derived units (CL in L/h, ...).
+    route, duration, tau, auc_method, blq_rules, partial, qc
+        As in :func:`pkwidgets.nca_profile`; ``duration`` and ``tau`` may also
+        name a column (constant within a profile).
+    terminal : "auto", (start, end), or dict of profile key -> (start, end)
+        Lambda-z window for all profiles or per profile (key: the ``by``
+        value, a tuple when ``by`` has several columns).
+    exclude : str or dict, optional
+        Column of booleans (True = leave the sample out of the lambda-z fit),
+        or dict of profile key -> sampling times to leave out.
+    sep, decimal, encoding
+        CSV reading options when ``data`` is a path.
+
+    Returns
+    -------
+    NCATable
+        One row per profile, ``by`` columns first, then PPTESTCD codes; with
+        ``.rows``, ``.unused``, ``.qc_flags``, ``.settings``, ``.units`` and
+        ``.to_long()``.  Results equal :func:`pkwidgets.nca_profile` on each
+        profile.
+
+    Raises
+    ------
+    InputDataError
+        With file (or table), line (or row) and column for unreadable values,
+        missing columns, duplicate times in a profile, conflicting doses.
+    """
+    by = [by] if isinstance(by, str) else list(by)
+    if not by:
+        raise ValueError("by must name at least one column that identifies a profile (e.g. by='subject').")
+    src = _Source.open(data, sep=sep, encoding=encoding)
+    opt_cols = {"blq": blq, "lloq": lloq, "dose_time": dose_time, "duration": duration, "tau": tau,
+                "exclude": exclude, "dose": dose}
+    required = by + [time, conc] + [v for k, v in opt_cols.items()
+                                     if isinstance(v, str) and not (k == "dose" and v == "dose")]
+    src.require(required)
+    f = src.frame
+    n = len(f)
+
+    t = src.numeric(time, decimal)
+    c, blq_a, lloq_txt = src.concentrations(conc, decimal)
+    if isinstance(blq, str):
+        blq_a = blq_a | src.boolean(blq)
+    lloq_a = src.numeric(lloq, decimal) if isinstance(lloq, str) else np.full(n, np.nan if lloq is None else float(lloq))
+    lloq_a = np.where(np.isnan(lloq_a), lloq_txt, lloq_a)
+
+    no_time = np.isnan(t)
+    bad_time = no_time & (~np.isnan(c) | blq_a)
+    if bad_time.any():
+        i = int(np.flatnonzero(bad_time)[0])
+        raise InputDataError(
+            f"{src.at(i, time)}: time is empty but a concentration is given; fill in the sampling time.",
+            file=src.file, line=src.line(i), column=time)
+    if np.isinf(t).any():
+        i = int(np.flatnonzero(np.isinf(t))[0])
+        raise InputDataError(f"{src.at(i, time)}: time is infinite.", file=src.file, line=src.line(i), column=time)
+    bad_c = np.isinf(c) | (c < 0)
+    if bad_c.any():
+        i = int(np.flatnonzero(bad_c)[0])
+        raise InputDataError(
+            f"{src.at(i, conc)}: concentration {c[i]!r} is not a finite value >= 0; "
+            "write BLQ values as 'BLQ' or '<LLOQ' or flag them in a blq column.",
+            file=src.file, line=src.line(i), column=conc)
+
+    keep = ~no_time
+    prof = src.profiles(by, keep)
+    P = int(prof.max()) + 1 if keep.any() else 0
+    if P == 0:
+        raise InputDataError(f"{src.name}: no row has a sampling time; nothing to analyse.", file=src.file)
+    keys = src.keys(by, prof, P)
+
+    if dose_time is not None:
+        dt_p = src.per_profile(dose_time, prof, P, "dose_time", decimal)
+        t = t - dt_p[np.maximum(prof, 0)]
+    if isinstance(dose, str) and dose not in f.columns:
+        if dose != "dose":
+            raise InputDataError(f"{src.name}: dose column {dose!r} not found.", file=src.file, column=dose)
+        warnings.warn(f"{src.name} has no 'dose' column: CL, V and dose-normalised values are not computed; "
+                      "pass dose= (a column or an amount).", stacklevel=2)
+        dose = None
+    dose_p = src.per_profile(dose, prof, P, "dose", decimal) if dose is not None else None
+    dur_p = src.per_profile(duration, prof, P, "duration", decimal) if duration is not None else None
+    tau_p = src.per_profile(tau, prof, P, "tau", decimal) if tau is not None else None
+
+    # pad into profiles x samples, ordered by time within each profile
+    idx = np.flatnonzero(keep)
+    order = idx[np.lexsort((t[idx], prof[idx]))]
+    p_sorted = prof[order]
+    starts = np.r_[0, np.flatnonzero(np.diff(p_sorted)) + 1]
+    counts = np.diff(np.r_[starts, len(order)])
+    slot = np.arange(len(order)) - np.repeat(starts, counts)
+    t_sorted = t[order]
+    dup = (np.diff(p_sorted) == 0) & (np.diff(t_sorted) == 0)
+    if dup.any():
+        j = int(np.flatnonzero(dup)[0])
+        a, b = order[j], order[j + 1]
+        raise InputDataError(
+            f"{src.name}: profile {keys.iloc[p_sorted[j]].to_dict()} has time {t_sorted[j]:g} twice "
+            f"({src.where_row(a)} and {src.where_row(b)}); keep one sample per time (or average replicates).",
+            file=src.file, line=src.line(a), column=time, profile=keys.iloc[p_sorted[j]].to_dict())
+    Nmax = int(counts.max())
+    T = np.full((P, Nmax), np.nan)
+    C = np.full((P, Nmax), np.nan)
+    B = np.zeros((P, Nmax), dtype=bool)
+    L = np.full((P, Nmax), np.nan)
+    X = np.zeros((P, Nmax), dtype=bool)
+    T[p_sorted, slot] = t_sorted
+    C[p_sorted, slot] = c[order]
+    B[p_sorted, slot] = blq_a[order]
+    L[p_sorted, slot] = lloq_a[order]
+    X[p_sorted, slot] = src.exclusions(exclude, prof, keys, t, by)[order]
+    term = _terminal_array(terminal, keys, by, P)
+
+    res = nca_arrays(T, C, dose=dose_p, route=route, duration=dur_p, tau=tau_p, auc_method=auc_method,
+                     terminal=term, exclude=X, blq=B, lloq=L, partial=partial, blq_rules=blq_rules, qc=qc)
+    # rows out of time order in the input, per profile
+    unsorted = np.zeros(P, dtype=bool)
+    pi = prof[idx]
+    back = (np.diff(pi) == 0) & (np.diff(t[idx]) < 0)
+    unsorted[pi[1:][back]] = True
+    res.flags["times_sorted"] = res.flags["times_sorted"] | unsorted
+
+    # wide table, units
+    codes = ordered_codes(res)
+    su = None if units is None else (units if isinstance(units, StudyUnits) else StudyUnits(**units))
+    unit_map, cols = {}, {}
+    for k in codes:
+        text, factor = su.unit_of(k) if su is not None else ("", 1.0)
+        unit_map[k] = text
+        cols[k] = res[k] * factor
+    wide = pd.concat([keys.reset_index(drop=True), pd.DataFrame(cols)], axis=1)
+
+    # every input row: used or not, and why
+    status = np.full(n, -1, dtype=np.int16)
+    lz = np.zeros(n, dtype=bool)
+    status[order] = res.status[p_sorted, slot]
+    lz[order] = res.lambda_z_used[p_sorted, slot]
+    reasons = np.array([STATUS_REASONS[s] for s in sorted(STATUS_REASONS)] + [REASON_NO_TIME], dtype=object)
+    rows = src.original()
+    rows["profile"] = np.where(keep, prof, -1)
+    rows["used"] = status == SampleStatus.USED
+    rows["reason"] = reasons[np.where(status < 0, len(reasons) - 1, status)]
+    rows["lambda_z"] = lz
+
+    qct = qc or QCThresholds()
+    fl = [(p, name) for name in FLAGS for p in np.flatnonzero(res.flags[name])]
+    fl.sort()
+    qc_flags = pd.concat(
+        [keys.iloc[[p for p, _ in fl]].reset_index(drop=True),
+         pd.DataFrame({"flag": [nm for _, nm in fl], "severity": [FLAGS[nm][0] for _, nm in fl],
+                       "message": [flag_message(nm, qct) for _, nm in fl]})], axis=1)
+    rules = res.settings["blq_rules"]
+    settings = dict(res.settings)
+    settings.update(
+        source=src.name, by=by, columns={"time": time, "conc": conc, "dose": dose, "blq": blq, "lloq": lloq,
+                                         "dose_time": dose_time},
+        units=None if su is None else {"time": su.time, "conc": su.conc, "dose": su.dose},
+        tau=tau, duration=duration,
+        blq_rules_text="; ".join(f"{k}={v}" for k, v in rules.items()),
+        profiles=P, rows=n, rows_used=int(rows["used"].sum()),
+    )
+    out = NCATable(wide)
+    out._record = NCARecord(rows=rows, qc_flags=qc_flags, settings=settings, units=unit_map, by=by)
+    return out
+
+
+def _key_of(row_values, by):
+    return row_values[0] if len(by) == 1 else tuple(row_values)
+
+
+def _terminal_array(terminal, keys, by, P):
+    if not isinstance(terminal, dict):
+        return terminal
+    arr = np.full((P, 2), np.nan)
+    lookup = {_key_of(list(r), by): i for i, r in enumerate(keys.itertuples(index=False))}
+    for k, win in terminal.items():
+        if k not in lookup:
+            raise InputDataError(f"terminal names profile {k!r}, which is not in the data (profiles are keyed by {by}).")
+        if win is None or (isinstance(win, str) and win == "auto"):
+            continue
+        arr[lookup[k]] = win
+    return arr
+
+
+class _Source:
+    """A table being parsed, with the means to name any cell in an error."""
+
+    def __init__(self, frame, file, name):
+        self.frame = frame
+        self.file = file
+        self.name = name
+
+    @classmethod
+    def open(cls, data, *, sep, encoding):
+        if isinstance(data, (str, os.PathLike)):
+            return cls(read_study_csv(data, sep=sep, encoding=encoding), os.fspath(data), os.fspath(data))
+        if isinstance(data, pd.DataFrame):
+            if len(data) == 0:
+                raise InputDataError("the table is empty: expected one row per sample.")
+            if data.columns.duplicated().any():
+                d = data.columns[data.columns.duplicated()][0]
+                raise InputDataError(f"column name {d!r} appears more than once; give each column a distinct name.",
+                                     column=d)
+            return cls(data, None, "table")
+        raise TypeError(f"data must be a pandas DataFrame or the path of a CSV file; got {type(data).__name__}.")
+
+    def line(self, i):
+        if self.file is not None:
+            return int(self.frame[LINE].iloc[i])
+        return self.frame.index[i]
+
+    def where_row(self, i):
+        return f"line {self.line(i)}" if self.file is not None else f"row {self.line(i)!r}"
+
+    def at(self, i, column):
+        return f"{self.name}, {self.where_row(i)}, column {column!r}"
+
+    def original(self):
+        cols = [c for c in self.frame.columns if c != LINE]
+        rows = self.frame[cols].copy()
+        if self.file is not None:
+            rows.insert(0, "line", self.frame[LINE].to_numpy())
+        return rows
+
+    def require(self, columns):
+        missing = [c for c in dict.fromkeys(columns) if c not in self.frame.columns]
+        if missing:
+            have = [c for c in self.frame.columns if c != LINE]
+            raise InputDataError(
+                f"{self.name}: required column(s) {missing} not found; columns are {have}."
+                + wrong_delimiter_hint(have) + " Map your names with time=, conc=, by=, dose=.",
+                file=self.file, column=missing[0])
+
+    def _text(self, column):
+        return self.frame[column].astype(str).str.strip()
+
+    def numeric(self, column, decimal="."):
+        s = self.frame[column]
+        if pd.api.types.is_numeric_dtype(s) and not pd.api.types.is_bool_dtype(s):
+            return s.to_numpy(dtype=np.float64, na_value=np.nan)
+        text = self._text(column)
+        empty = text.str.lower().isin(_EMPTY) | s.isna().to_numpy()
+        if decimal != ".":
+            text = text.str.replace(decimal, ".", regex=False)
+        vals = pd.to_numeric(text.where(~empty, None), errors="coerce").to_numpy(dtype=np.float64, na_value=np.nan)
+        bad = np.isnan(vals) & ~empty.to_numpy()
+        if bad.any():
+            i = int(np.flatnonzero(bad)[0])
+            raw = s.iloc[i]
+            hint = " It looks like a decimal comma: pass decimal=','." if "," in str(raw) else ""
+            raise InputDataError(
+                f"{self.at(i, column)}: {raw!r} is not a number ({int(bad.sum())} such value(s) in the column).{hint}",
+                file=self.file, line=self.line(i), column=column)
+        return vals
+
+    def concentrations(self, column, decimal="."):
+        s = self.frame[column]
+        n = len(s)
+        if pd.api.types.is_numeric_dtype(s) and not pd.api.types.is_bool_dtype(s):
+            return s.to_numpy(dtype=np.float64, na_value=np.nan), np.zeros(n, bool), np.full(n, np.nan)
+        text = self._text(column)
+        if decimal != ".":
+            text = text.str.replace(decimal, ".", regex=False)
+        vals = pd.to_numeric(text, errors="coerce").to_numpy(dtype=np.float64, na_value=np.nan)
+        blq = np.zeros(n, dtype=bool)
+        lloq = np.full(n, np.nan)
+        todo = np.flatnonzero(np.isnan(vals))
+        if todo.size:
+            raw = s.iloc[todo].to_numpy(dtype=object)
+            raw = np.where(pd.isna(raw), None, raw)
+            cv, b, lq, bad = parse_concentrations(list(raw))
+            if bad.any():
+                i = int(todo[np.flatnonzero(bad)[0]])
+                hint = " It looks like a decimal comma: pass decimal=','." if "," in str(s.iloc[i]) else ""
+                raise InputDataError(
+                    f"{self.at(i, column)}: {s.iloc[i]!r} is neither a number nor a BLQ marker "
+                    f"({', '.join(BLQ_MARKERS)}, or '<' followed by the LLOQ).{hint}",
+                    file=self.file, line=self.line(i), column=column)
+            vals[todo], blq[todo], lloq[todo] = cv, b, lq
+        return vals, blq, lloq
+
+    def boolean(self, column):
+        s = self.frame[column]
+        if pd.api.types.is_bool_dtype(s):
+            return s.to_numpy(dtype=bool, na_value=False)
+        text = self._text(column).str.lower()
+        text = text.where(~s.isna(), "")
+        t = text.isin(_TRUE).to_numpy()
+        fz = text.isin(_FALSE).to_numpy()
+        bad = ~t & ~fz
+        if bad.any():
+            i = int(np.flatnonzero(bad)[0])
+            raise InputDataError(
+                f"{self.at(i, column)}: {s.iloc[i]!r} is not a yes/no value (use true/false, yes/no or 1/0).",
+                file=self.file, line=self.line(i), column=column)
+        return t
+
+    def profiles(self, by, keep):
+        for col in by:
+            miss = self.frame[col].isna().to_numpy() | (self._text(col) == "").to_numpy()
+            if (miss & keep).any():
+                i = int(np.flatnonzero(miss & keep)[0])
+                raise InputDataError(f"{self.at(i, col)}: profile key is empty; every sample needs a {col!r}.",
+                                     file=self.file, line=self.line(i), column=col)
+        sub = self.frame.loc[keep, by]
+        prof = np.full(len(self.frame), -1, dtype=np.int64)
+        prof[keep] = sub.groupby(by, sort=True, dropna=False).ngroup().to_numpy()
+        return prof
+
+    def keys(self, by, prof, P):
+        first = np.full(P, -1, dtype=np.int64)
+        valid = np.flatnonzero(prof >= 0)
+        first_pos = np.unique(prof[valid], return_index=True)[1]
+        first[:] = valid[first_pos]
+        return self.frame[by].iloc[first].reset_index(drop=True)
+
+    def per_profile(self, value, prof, P, name, decimal):
+        if not isinstance(value, str):
+            return value
+        vals = self.numeric(value, decimal)
+        ok = prof >= 0
+        df = pd.DataFrame({"p": prof[ok], "v": vals[ok]}).dropna()
+        spread = df.groupby("p")["v"].agg(["min", "max"])
+        conflict = spread.index[spread["min"] != spread["max"]]
+        if len(conflict):
+            p = int(conflict[0])
+            lines = [self.where_row(i) for i in np.flatnonzero(prof == p)[:6]]
+            raise InputDataError(
+                f"{self.name}: column {value!r} differs within one profile ({spread.loc[p, 'min']:g} and "
+                f"{spread.loc[p, 'max']:g}; {', '.join(lines)}); a profile has one {name}. Split the profile "
+                "with another by= column (e.g. period or day) or correct the value.",
+                file=self.file, column=value)
+        out = np.full(P, np.nan)
+        out[spread.index.to_numpy()] = spread["min"].to_numpy()
+        return out
+
+    def exclusions(self, exclude, prof, keys, t, by):
+        n = len(self.frame)
+        if exclude is None:
+            return np.zeros(n, dtype=bool)
+        if isinstance(exclude, str):
+            return self.boolean(exclude)
+        if isinstance(exclude, dict):
+            lookup = {_key_of(list(r), by): i for i, r in enumerate(keys.itertuples(index=False))}
+            mask = np.zeros(n, dtype=bool)
+            for k, times in exclude.items():
+                if k not in lookup:
+                    raise InputDataError(f"exclude names profile {k!r}, which is not in the data.")
+                rows = np.flatnonzero(prof == lookup[k])
+                for x in np.atleast_1d(times):
+                    hit = rows[np.isclose(t[rows], float(x), rtol=1e-9, atol=1e-12)]
+                    if hit.size == 0:
+                        raise InputDataError(f"exclude lists time {x!r} for profile {k!r}, which has no sample then.")
+                    mask[hit] = True
+            return mask
+        raise TypeError(f"exclude must be None, a column name or a dict of profile -> times; got {type(exclude).__name__}.")
