@@ -430,7 +430,8 @@ class _Source:
         text = self._text(column)
         if decimal != ".":
             text = text.str.replace(decimal, ".", regex=False)
-        vals = pd.to_numeric(text, errors="coerce").to_numpy(dtype=np.float64, na_value=np.nan)
+        # a writable copy: pandas (copy-on-write) may hand back a read-only view
+        vals = np.array(pd.to_numeric(text, errors="coerce").to_numpy(dtype=np.float64, na_value=np.nan))
         blq = np.zeros(n, dtype=bool)
         lloq = np.full(n, np.nan)
         todo = np.flatnonzero(np.isnan(vals))
