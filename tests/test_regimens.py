@@ -1,0 +1,234 @@
+"""Routes, steady state and partial AUC checked against outside references.
+
+Sources beside each check:
+- one-compartment closed forms for IV bolus, infusion and oral dosing and the
+  superposition principle at steady state (Gibaldi & Perrier, Pharmacokinetics,
+  2nd ed.; Rowland & Tozer, Clinical Pharmacokinetics and Pharmacodynamics);
+- CDISC definitions: CAVG = AUCTAU/tau, fluctuation% = (CMAX - CMIN)/CAVG*100,
+  swing = (CMAX - CMIN)/CMIN (shared/REFERENCES.md, seen);
+- log interpolation between (48 h, 16) and (78 h, 5.0897) gives 6.39997 at 72 h
+  (shared/REFERENCES.md, seen);
+- partial AUCs AUC0-1.5 and AUC1.5-t for multiphasic modified release
+  (Lionberger et al., Pharm Res 2012;29:1110-1120); early exposure cut at the
+  reference median Tmax (FDA practice, from memory); AUC(0-72h) for long
+  half-life drugs (EMA bioequivalence guideline 2010);
+- hand calculations written out in the comments.
+"""
+
+import numpy as np
+import pandas as pd
+import pytest
+
+import pkwidgets as pk
+
+D, V, CL = 1000.0, 10.0, 1.0
+K = CL / V
+
+
+# --- IV bolus ---------------------------------------------------------------
+def test_bolus_c0_and_back_extrapolated_share():
+    t = np.array([0.25, 0.5, 1, 2, 4, 8, 12, 24])
+    c = D / V * np.exp(-K * t)
+    r = pk.nca_profile(t, c, dose=D, route="iv-bolus", auc_method="lin-up/log-down")
+    # one compartment: C0 = Dose/V
+    assert r["C0"] == pytest.approx(D / V, rel=1e-12)
+    # AUCPBEO = area 0..t1 / AUC0-inf = C0 (1 - e^{-k t1})/k / (Dose/CL) * 100
+    share = (D / V) * (1 - np.exp(-K * 0.25)) / K / (D / CL) * 100
+    assert r["AUCPBEO"] == pytest.approx(share, rel=1e-12)
+    assert "c0_extrapolated" in r.attrs["flags"]
+
+
+def test_bolus_c0_first_observed_when_not_declining():
+    # first two samples rise: no log back-extrapolation, C0 = first observation
+    # (rule stated in the issue; common practice, no source)
+    r = pk.nca_profile([0.5, 1, 2, 4, 8], [50, 60, 40, 20, 5], route="iv-bolus")
+    assert r["C0"] == 50
+    assert "c0_first_observed" in r.attrs["flags"]
+
+
+def test_bolus_predose_sample_is_reported_not_used():
+    t = np.array([0, 0.5, 1, 2, 4, 8, 12])
+    c = np.r_[0.0, D / V * np.exp(-K * t[1:])]
+    r = pk.nca_profile(t, c, dose=D, route="iv-bolus", auc_method="lin-up/log-down")
+    assert r["C0"] == pytest.approx(D / V, rel=1e-12)
+    assert r.attrs["sample_status"][0].startswith("IV bolus pre-dose sample")
+
+
+# --- IV infusion --------------------------------------------------------------
+def infusion(t, dose=D, T=2.0, cl=CL, v=V):
+    # one-compartment constant-rate infusion (Gibaldi & Perrier)
+    k = cl / v
+    R = dose / T
+    during = R / cl * (1 - np.exp(-k * np.minimum(t, T)))
+    return np.where(t <= T, during, R / cl * (1 - np.exp(-k * T)) * np.exp(-k * (t - T)))
+
+
+def test_infusion_closed_forms():
+    T = 2.0
+    t = np.r_[np.linspace(0, T, 81), np.linspace(2.5, 120, 60)]
+    r = pk.nca_profile(t, infusion(t, T=T), dose=D, route="iv-infusion", duration=T,
+                       auc_method="lin-up/log-down")
+    # after the end of infusion the decline is mono-exponential: lambda z = k
+    assert r["LAMZ"] == pytest.approx(K, rel=1e-9)
+    # AUC0-inf = Dose/CL (linear rule during the infusion: dense grid, 1e-4)
+    assert r["AUCIFO"] == pytest.approx(D / CL, rel=1e-4)
+    assert r["CLO"] == pytest.approx(CL, rel=1e-4)
+    # MRT(NCA) - T/2 = 1/k for one compartment; Vss = CL * MRT = V
+    assert r["MRTIVIFO"] == pytest.approx(1 / K, rel=1e-3)
+    assert r["VSSO"] == pytest.approx(V, rel=1e-3)
+    assert r["TMAX"] == T
+
+
+def test_infusion_needs_duration():
+    with pytest.raises(ValueError, match="iv-infusion.*duration"):
+        pk.nca_profile([0, 1, 2], [0, 5, 3], route="iv-infusion")
+
+
+# --- steady state ------------------------------------------------------------
+TAU = 12.0
+
+
+def bolus_ss(t):
+    # superposition: C_ss(t) = C0 e^{-kt} / (1 - e^{-k tau}) for 0 < t <= tau
+    return D / V * np.exp(-K * t) / (1 - np.exp(-K * TAU))
+
+
+def test_bolus_steady_state_superposition():
+    t = np.array([0, 0.5, 1, 2, 4, 6, 8, 12])
+    c = np.r_[bolus_ss(TAU), bolus_ss(t[1:])]  # pre-dose sample = trough C_ss(tau)
+    r = pk.nca_profile(t, c, dose=D, tau=TAU, route="iv-bolus", auc_method="lin-up/log-down")
+    # AUCtau,ss = single-dose AUC0-inf = Dose/CL (log rule exact)
+    assert r["AUCTAU"] == pytest.approx(D / CL, rel=1e-12)
+    assert r["CLTAU"] == pytest.approx(CL, rel=1e-12)
+    # Cavg = Dose/(CL tau); accumulation index 1/(1 - e^{-k tau})
+    assert r["CAVG"] == pytest.approx(D / (CL * TAU), rel=1e-12)
+    assert r["AILAMZ"] == pytest.approx(1 / (1 - np.exp(-K * TAU)), rel=1e-12)
+    assert r["CTROUGH"] == pytest.approx(bolus_ss(TAU), rel=1e-12)
+    assert r["CMIN"] == pytest.approx(bolus_ss(TAU), rel=1e-12)
+    # CDISC definitions: fluctuation% and swing
+    assert r["FLUCP"] == pytest.approx(100 * (r["CMAX"] - r["CMIN"]) / r["CAVG"], rel=1e-12)
+    assert r["SWING"] == pytest.approx((r["CMAX"] - r["CMIN"]) / r["CMIN"], rel=1e-12)
+
+
+def oral_ss(t, dose=100.0, ka=1.2, ke=0.1, v=20.0, tau=TAU):
+    # superposition of Bateman functions at steady state (Gibaldi & Perrier)
+    a = dose * ka / (v * (ka - ke))
+    return a * (np.exp(-ke * t) / (1 - np.exp(-ke * tau)) - np.exp(-ka * t) / (1 - np.exp(-ka * tau)))
+
+
+def test_oral_steady_state_superposition_and_predose_rule():
+    t = np.linspace(0, TAU, 241)
+    r = pk.nca_profile(t, oral_ss(t), dose=100.0, tau=TAU, auc_method="lin-up/log-down")
+    # AUCtau,ss = F Dose / CL with CL = ke V = 2
+    assert r["AUCTAU"] == pytest.approx(100.0 / 2.0, rel=1e-4)
+    assert r["CLFTAU"] == pytest.approx(2.0, rel=1e-4)
+    # the pre-dose sample at time 0 is used as C(0), not replaced by 0 (rule of the issue)
+    assert "time0_added" not in r.attrs["flags"]
+    assert r["CTROUGH"] == pytest.approx(oral_ss(0.0), rel=1e-12)
+    # without a pre-dose sample, CMIN of the interval stands in at time 0 and is flagged
+    r2 = pk.nca_profile(t[1:], oral_ss(t[1:]), dose=100.0, tau=TAU)
+    assert "predose_imputed" in r2.attrs["flags"]
+
+
+def test_auctau_extrapolated_when_last_sample_before_tau():
+    t = np.array([0, 0.5, 1, 2, 4, 6, 8])
+    c = np.r_[bolus_ss(TAU), bolus_ss(t[1:])]
+    r = pk.nca_profile(t, c, dose=D, tau=TAU, route="iv-bolus", auc_method="lin-up/log-down")
+    # lambda z is exact, so the extrapolation to tau is exact: Dose/CL
+    assert r["AUCTAU"] == pytest.approx(D / CL, rel=1e-12)
+    assert "tau_extrapolated" in r.attrs["flags"]
+
+
+def test_accumulation_ratios_against_superposition():
+    ka, ke, v, dose = 1.2, 0.1, 20.0, 100.0
+    t = np.linspace(0, TAU, 241)
+    first = dose * ka / (v * (ka - ke)) * (np.exp(-ke * t) - np.exp(-ka * t))  # Bateman, first dose
+    frame = pd.concat([
+        pd.DataFrame({"subject": "S1", "day": 1, "time": t, "conc": first, "dose": dose}),
+        pd.DataFrame({"subject": "S1", "day": 8, "time": t, "conc": oral_ss(t), "dose": dose}),
+    ])
+    res = pk.nca(frame, by=["subject", "day"], tau=TAU, occasion="day", auc_method="lin-up/log-down")
+    # closed form: AUC0-tau after the first dose = a [(1 - e^{-ke tau})/ke - (1 - e^{-ka tau})/ka]
+    a = dose * ka / (v * (ka - ke))
+    auc1 = a * ((1 - np.exp(-ke * TAU)) / ke - (1 - np.exp(-ka * TAU)) / ka)
+    ss = res.loc[res["day"] == 8].iloc[0]
+    assert ss["ARAUC"] == pytest.approx((dose / (ke * v)) / auc1, rel=1e-3)
+    assert np.isnan(res.loc[res["day"] == 1, "ARAUC"].iloc[0])
+    assert ss["ARCMAX"] == pytest.approx(oral_ss(t).max() / first.max(), rel=1e-12)
+
+
+def test_dose_time_makes_times_relative():
+    # multiple-dose record on one clock: dose at 168 h, samples after it
+    t_rel = np.array([0, 0.5, 1, 2, 4, 8, 12])
+    c = np.r_[bolus_ss(TAU), bolus_ss(t_rel[1:])]
+    frame = pd.DataFrame({"subject": 1, "time": 168 + t_rel, "conc": c, "dose": D, "dose_time": 168.0})
+    res = pk.nca(frame, by="subject", dose_time="dose_time", tau=TAU, route="iv-bolus",
+                 auc_method="lin-up/log-down")
+    assert res["AUCTAU"].iloc[0] == pytest.approx(D / CL, rel=1e-12)  # superposition, as above
+
+
+# --- partial AUC ----------------------------------------------------------------
+T_MONO = np.array([0.5, 1, 2, 4, 6, 8, 12, 24.0])
+C_MONO = 100 * np.exp(-0.1 * T_MONO)
+
+
+def test_partial_auc_exact_for_monoexponential_with_log_interpolation():
+    # integral of 100 e^{-0.1 t} from 1.5 to 10 = 1000 (e^{-0.15} - e^{-1})
+    exact = 1000 * (np.exp(-0.15) - np.exp(-1.0))
+    got = pk.partial_auc(T_MONO, C_MONO, 1.5, 10, auc_method="lin-up/log-down", route="iv-bolus")
+    assert got == pytest.approx(exact, rel=1e-12)
+
+
+def test_partial_auc_beyond_tlast_uses_lambda_z():
+    exact = 1000 * (np.exp(-2.0) - np.exp(-3.0))
+    r = pk.nca_profile(T_MONO, C_MONO, route="iv-bolus", auc_method="lin-up/log-down", partial=[(20, 30)])
+    assert r["AUCINT_20-30"] == pytest.approx(exact, rel=1e-12)
+    assert "partial_extrapolated" in r.attrs["flags"]
+
+
+def test_partial_auc_linear_interpolation_by_hand():
+    # hand calculation: c(0.5) = 5, c(3) = 6; 0.5*(5+10)/2 + (10+8)/2 + (8+6)/2 = 19.75
+    assert pk.partial_auc([0, 1, 2, 4], [0, 10, 8, 4], 0.5, 3) == pytest.approx(19.75, rel=1e-15)
+
+
+def test_log_interpolation_reference_value():
+    # REFERENCES.md (seen): log interpolation between (48 h, 16) and (78 h, 5.0897) is 6.39997 at 72 h
+    from pkwidgets.auc import area_to
+    _, c72 = area_to(np.array(72.0), 48.0, 16.0, 78.0, 5.0897, np.array(True))
+    assert float(c72) == pytest.approx(6.39997, abs=5e-6)
+
+
+def test_lionberger_partial_areas_add_up():
+    # Lionberger et al. 2012: AUC0-1.5 h and AUC1.5-t for multiphasic MR products;
+    # the two partial areas add up to AUCLST (additivity of the integral)
+    t = np.array([0, 0.25, 0.5, 1, 1.25, 2, 3, 4, 6, 8, 12, 16, 24])
+    c = np.array([0, 3.1, 5.2, 6.0, 5.1, 6.8, 7.4, 6.1, 4.0, 2.9, 1.5, 0.8, 0.2])
+    for method in ("linear", "lin-up/log-down", "lin-log"):
+        r = pk.nca_profile(t, c, auc_method=method, partial=[(0, 1.5), (1.5, 24)])
+        assert r["AUCINT_0-1.5"] + r["AUCINT_1.5-24"] == pytest.approx(r["AUCLST"], rel=1e-12)
+
+
+def test_early_exposure_cut_at_reference_median_tmax():
+    # FDA practice (from memory): early exposure AUC0-Tmax,ref with Tmax,ref the
+    # reference product's median Tmax; per-profile ends need named intervals.
+    frame = pd.DataFrame({
+        "subject": np.repeat([1, 2, 3], 6),
+        "time": np.tile([0, 0.5, 1, 2, 4, 8], 3),
+        "conc": [0, 4, 9, 7, 3, 1, 0, 6, 8, 7, 4, 1, 0, 2, 5, 9, 5, 2],
+    })
+    tmax_ref = 1.5  # median reference Tmax, taken as given
+    res = pk.nca(frame, by="subject", dose=None, partial={"AUCINT_early": (0, tmax_ref)})
+    # hand calculation, subject 1: 0.5*4/2 + 0.5*(4+9)/2 + 0.5*(9+8)/2 with c(1.5) = 8
+    assert res.loc[res.subject == 1, "AUCINT_early"].item() == pytest.approx(1 + 3.25 + 4.25, rel=1e-15)
+
+
+def test_ema_truncated_auc_0_72():
+    # EMA 2010: AUC(0-72h) may replace AUC(0-inf) for long half-life drugs; 72 h falls
+    # between samples and is interpolated (log rule on the declining segment)
+    t = np.array([0, 1, 2, 4, 8, 24, 48, 96, 144])
+    k = np.log(2) / 60
+    c = np.r_[0, 50 * np.exp(-k * t[1:])]
+    r = pk.nca_profile(t, c, auc_method="lin-up/log-down", partial=[(0, 72)])
+    exact_24_72 = 50 / k * (np.exp(-k * 24) - np.exp(-k * 72))
+    head = pk.partial_auc(t, c, 0, 24, auc_method="lin-up/log-down")
+    assert r["AUCINT_0-72"] - head == pytest.approx(exact_24_72, rel=1e-12)
