@@ -289,10 +289,13 @@ def nca_arrays(
     pieces = []
     for s in range(0, P, CHUNK):
         sl = slice(s, min(P, s + CHUNK))
-        pieces.append(
-            _chunk(t[sl], c[sl], blq_a[sl], lloq_a[sl], excl[sl], dose_a[sl], dur[sl], tau_a[sl],
-                   lo[sl], hi[sl], [(n, a[sl], b[sl]) for n, a, b in parts], opts)
-        )
+        try:
+            pieces.append(
+                _chunk(t[sl], c[sl], blq_a[sl], lloq_a[sl], excl[sl], dose_a[sl], dur[sl], tau_a[sl],
+                       lo[sl], hi[sl], [(n, a[sl], b[sl]) for n, a, b in parts], opts)
+            )
+        except SampleValueError as exc:  # chunk-relative profile index -> index in the input
+            raise exc.shifted(s) from None
     params, flags, status, used = pieces[0] if len(pieces) == 1 else _concat(pieces)
     out = ArrayResult(params)
     out.flags = flags
@@ -316,6 +319,21 @@ def _concat(pieces):
     return params, flags, status, used
 
 
+class SampleValueError(ValueError):
+    """A ``ValueError`` about one input sample, located by ``profile`` and ``sample`` index.
+
+    ``template`` holds the message with ``{where}`` in place of the location,
+    so that a caller that knows more (file, line, subject) can reword it.
+    """
+
+    def __init__(self, template, profile, sample):
+        self.template, self.profile, self.sample = template, profile, sample
+        super().__init__(template.format(where=f"profile {profile}, sample {sample}"))
+
+    def shifted(self, offset):
+        return SampleValueError(self.template, self.profile + offset, self.sample)
+
+
 def _rule_value(rule, lloq, where_mask, position):
     if rule == "zero":
         return np.zeros_like(lloq)
@@ -324,9 +342,9 @@ def _rule_value(rule, lloq, where_mask, position):
     need = where_mask & np.isnan(lloq)
     if need.any():
         p, s = np.argwhere(need)[0]
-        raise ValueError(
-            f"BLQ rule {position}={rule!r} needs the LLOQ, but profile {p}, sample {s} has none; "
-            "pass lloq= (a number, or one per profile or sample)."
+        raise SampleValueError(
+            f"BLQ rule {position}={rule!r} needs the LLOQ, but {{where}} has none; "
+            "pass lloq= (a number, or one per profile or sample).", int(p), int(s)
         )
     return lloq * (0.5 if rule == "half-lloq" else 1.0)
 
@@ -396,9 +414,10 @@ def _chunk(t, c, blq, lloq, excl, dose, dur, tau, lo, hi, parts, o):  # noqa: C9
     X = np.concatenate([np.zeros((P, 1), dtype=bool), excl], axis=1)
     key = np.where(U, T, np.inf)
     order = np.argsort(key, axis=1, kind="stable")
-    flags["times_sorted"] = (np.diff(np.where(usable, t, np.nan), axis=1) < 0).any(axis=1) | (
-        np.diff(np.where(present, t, np.inf), axis=1) < 0
-    ).any(axis=1)
+    with np.errstate(invalid="ignore"):  # inf - inf between padding cells: NaN, not "out of order"
+        flags["times_sorted"] = (np.diff(np.where(usable, t, np.nan), axis=1) < 0).any(axis=1) | (
+            np.diff(np.where(present, t, np.inf), axis=1) < 0
+        ).any(axis=1)
     Ts = np.take_along_axis(T, order, axis=1)
     Vs = np.take_along_axis(V, order, axis=1)
     Us = np.take_along_axis(U, order, axis=1)

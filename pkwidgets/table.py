@@ -17,7 +17,7 @@ import numpy as np
 import pandas as pd
 
 from .blq import BLQ_MARKERS, parse_concentrations
-from .engine import nca_arrays
+from .engine import SampleValueError, nca_arrays
 from .errors import InputDataError
 from .io import LINE, read_study_csv, wrong_delimiter_hint
 from .parameters import PARAMETERS
@@ -158,7 +158,10 @@ def nca(
     dose : str or float or None
         Dose column (constant within a profile) or one amount for all.  When
         the default column ``"dose"`` is absent, no dose is used (a warning
-        says so) and CL, V and dose-normalised values are NaN.
+        says so) and CL, V and dose-normalised values are NaN.  A dose column
+        asks for those values: a profile whose dose is empty, zero, negative or
+        infinite is an error naming the profile and its lines (pass
+        ``dose=None`` to analyse without doses).
     blq : str, optional
         Column of BLQ flags (true/false, yes/no, 1/0).
     lloq : str or float, optional
@@ -227,7 +230,7 @@ def nca(
     if bad_c.any():
         i = int(np.flatnonzero(bad_c)[0])
         raise InputDataError(
-            f"{src.at(i, conc)}: concentration {c[i]!r} is not a finite value >= 0; "
+            f"{src.at(i, conc)}: concentration {float(c[i])!r} is not a finite value >= 0; "
             "write BLQ values as 'BLQ' or '<LLOQ' or flag them in a blq column.",
             file=src.file, line=src.line(i), column=conc)
 
@@ -248,6 +251,8 @@ def nca(
                       "pass dose= (a column or an amount).", stacklevel=2)
         dose = None
     dose_p = src.per_profile(dose, prof, P, "dose", decimal) if dose is not None else None
+    if isinstance(dose, str):
+        src.check_doses(dose, dose_p, prof, keys)
     dur_p = src.per_profile(duration, prof, P, "duration", decimal) if duration is not None else None
     tau_p = src.per_profile(tau, prof, P, "tau", decimal) if tau is not None else None
 
@@ -280,8 +285,15 @@ def nca(
     X[p_sorted, slot] = src.exclusions(exclude, prof, keys, t, by)[order]
     term = _terminal_array(terminal, keys, by, P)
 
-    res = nca_arrays(T, C, dose=dose_p, route=route, duration=dur_p, tau=tau_p, auc_method=auc_method,
-                     terminal=term, exclude=X, blq=B, lloq=L, partial=partial, blq_rules=blq_rules, qc=qc)
+    try:
+        res = nca_arrays(T, C, dose=dose_p, route=route, duration=dur_p, tau=tau_p, auc_method=auc_method,
+                         terminal=term, exclude=X, blq=B, lloq=L, partial=partial, blq_rules=blq_rules, qc=qc)
+    except SampleValueError as exc:  # name the file, line and profile of the sample
+        i = int(order[starts[exc.profile] + exc.sample])
+        raise InputDataError(
+            f"{src.at(i, conc)}, profile {keys.iloc[exc.profile].to_dict()}: "
+            + exc.template.format(where="this BLQ sample"),
+            file=src.file, line=src.line(i), column=conc, profile=keys.iloc[exc.profile].to_dict()) from None
     # rows out of time order in the input, per profile
     unsorted = np.zeros(P, dtype=bool)
     pi = prof[idx]
@@ -348,6 +360,9 @@ def _terminal_array(terminal, keys, by, P):
         if win is None or (isinstance(win, str) and win == "auto"):
             continue
         arr[lookup[k]] = win
+        if not arr[lookup[k], 1] > arr[lookup[k], 0]:
+            raise InputDataError(f"terminal window for profile {k!r} must have end > start; got {tuple(win)!r}.",
+                                 profile=k)
     return arr
 
 
@@ -504,6 +519,22 @@ class _Source:
         out[spread.index.to_numpy()] = spread["min"].to_numpy()
         return out
 
+    def check_doses(self, column, dose_p, prof, keys):
+        """A dose column asks for CL, V and dose-normalised values: every profile needs a finite dose > 0."""
+        with np.errstate(invalid="ignore"):
+            bad = np.flatnonzero(~(dose_p > 0) | np.isinf(dose_p))
+        if bad.size:
+            p = int(bad[0])
+            rows = np.flatnonzero(prof == p)
+            key = keys.iloc[p].to_dict()
+            got = "no value" if np.isnan(dose_p[p]) else f"dose {float(dose_p[p]):g}"
+            raise InputDataError(
+                f"{self.name}: profile {key} has {got} in column {column!r} "
+                f"({', '.join(self.where_row(i) for i in rows[:6])}); CL, V and dose-normalised values need "
+                "a finite dose > 0. Correct the dose, leave the profile out, or pass dose=None to analyse "
+                "without doses.",
+                file=self.file, line=self.line(rows[0]), column=column, profile=key)
+
     def exclusions(self, exclude, prof, keys, t, by):
         n = len(self.frame)
         if exclude is None:
@@ -520,7 +551,8 @@ class _Source:
                 for x in np.atleast_1d(times):
                     hit = rows[np.isclose(t[rows], float(x), rtol=1e-9, atol=1e-12)]
                     if hit.size == 0:
-                        raise InputDataError(f"exclude lists time {x!r} for profile {k!r}, which has no sample then.")
+                        raise InputDataError(f"exclude lists time {float(x)!r} for profile {k!r}, which has no "
+                                             "sample then.", profile=k)
                     mask[hit] = True
             return mask
         raise TypeError(f"exclude must be None, a column name or a dict of profile -> times; got {type(exclude).__name__}.")
