@@ -10,6 +10,7 @@ from .parameters import PARAMETERS, parameter_table, partial_code
 from .profile import nca_profile, partial_auc
 from .table import NCARecord, NCATable, nca
 from .qc import FLAGS, QCThresholds
+from .record import SelectionRecord, profile_fingerprint
 from .units import StudyUnits
 
 __version__ = "0.1.0"
@@ -23,6 +24,7 @@ __all__ = [
     "NCATable",
     "PARAMETERS",
     "QCThresholds",
+    "SelectionRecord",
     "StudyUnits",
     "UnitError",
     "nca",
@@ -31,4 +33,5 @@ __all__ = [
     "parameter_table",
     "partial_auc",
     "partial_code",
+    "profile_fingerprint",
 ]

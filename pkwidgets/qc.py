@@ -66,6 +66,7 @@ FLAGS: dict[str, tuple[str, str]] = {
     "manual_terminal": ("info", "terminal phase chosen by hand"),
     "points_excluded": ("info", "points excluded from the lambda-z fit by hand"),
     "times_sorted": ("info", "samples were not in time order and were sorted"),
+    "selection_stale": ("review", "the recorded lambda-z choice was made on different data (fingerprint differs): automatic choice used, review and record again"),
 }
 
 

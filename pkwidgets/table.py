@@ -22,6 +22,7 @@ from .errors import InputDataError
 from .io import LINE, read_study_csv, wrong_delimiter_hint
 from .parameters import PARAMETERS
 from .profile import ordered_codes
+from .record import apply_selections, canonical_key, coerce_record
 from .qc import FLAGS, STATUS_REASONS, QCThresholds, SampleStatus, flag_message
 from .units import StudyUnits
 
@@ -55,6 +56,9 @@ class NCARecord:
     settings: dict
     units: dict = field(default_factory=dict)
     by: list = field(default_factory=list)
+    #: Engine inputs (profiles x samples arrays, per-profile options, keys,
+    #: fingerprints) so that widgets can show one profile as the run saw it.
+    inputs: dict = field(default_factory=dict)
 
 
 class NCATable(pd.DataFrame):
@@ -138,6 +142,7 @@ def nca(
     blq_rules=None,
     partial=(),
     qc=None,
+    selections=None,
     sep=",",
     decimal=".",
     encoding="utf-8",
@@ -180,6 +185,12 @@ def nca(
     exclude : str or dict, optional
         Column of booleans (True = leave the sample out of the lambda-z fit),
         or dict of profile key -> sampling times to leave out.
+    selections : SelectionRecord or path, optional
+        A record of hand-made lambda-z choices (:mod:`pkwidgets.record`).
+        The latest choice of each recorded profile replaces ``terminal`` and
+        ``exclude`` for that profile.  A profile whose data no longer match
+        the recorded fingerprint is analysed automatically and flagged
+        ``selection_stale``.  A missing file is an empty record.
     sep, decimal, encoding
         CSV reading options when ``data`` is a path.
 
@@ -284,6 +295,13 @@ def nca(
     L[p_sorted, slot] = lloq_a[order]
     X[p_sorted, slot] = src.exclusions(exclude, prof, keys, t, by)[order]
     term = _terminal_array(terminal, keys, by, P)
+    key_texts = [canonical_key(tuple(r)) for r in keys.itertuples(index=False)]
+    sel = None
+    if selections is not None:
+        rec = coerce_record(selections)
+        term, X, stale, applied, fps = apply_selections(rec, key_texts, T, C, B, X, term)
+        sel = {"path": rec.path, "applied": [key_texts[p] for p in np.flatnonzero(applied)],
+               "stale": [key_texts[p] for p in np.flatnonzero(stale)], "fingerprints": fps}
 
     try:
         res = nca_arrays(T, C, dose=dose_p, route=route, duration=dur_p, tau=tau_p, auc_method=auc_method,
@@ -300,6 +318,8 @@ def nca(
     back = (np.diff(pi) == 0) & (np.diff(t[idx]) < 0)
     unsorted[pi[1:][back]] = True
     res.flags["times_sorted"] = res.flags["times_sorted"] | unsorted
+    if sel is not None:
+        res.flags["selection_stale"] = stale
 
     # wide table, units
     codes = ordered_codes(res)
@@ -338,10 +358,12 @@ def nca(
         units=None if su is None else {"time": su.time, "conc": su.conc, "dose": su.dose},
         tau=tau, duration=duration,
         blq_rules_text="; ".join(f"{k}={v}" for k, v in rules.items()),
-        profiles=P, rows=n, rows_used=int(rows["used"].sum()),
+        profiles=P, rows=n, rows_used=int(rows["used"].sum()), selections=sel,
     )
     out = NCATable(wide)
-    out._record = NCARecord(rows=rows, qc_flags=qc_flags, settings=settings, units=unit_map, by=by)
+    inputs = {"time": T, "conc": C, "blq": B, "lloq": L, "exclude": X, "terminal": term, "dose": dose_p,
+              "duration": dur_p, "tau": tau_p, "keys": key_texts, "lambda_z_used": res.lambda_z_used}
+    out._record = NCARecord(rows=rows, qc_flags=qc_flags, settings=settings, units=unit_map, by=by, inputs=inputs)
     return out
 
 

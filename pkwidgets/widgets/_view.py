@@ -1,0 +1,303 @@
+r"""Pure helpers behind the widgets: from core results to what is drawn and written.
+
+Nothing here touches ipywidgets or bqplot.  Widget callbacks gather trait
+values and call these functions; all arithmetic (marker positions, the
+fitted line, readout text) lives here, where tests reach it without a
+browser.
+
+Colours are from the Okabe–Ito palette (Okabe & Ito, "Color Universal
+Design", 2008), always paired with a distinct marker shape and a legend
+word, so no role is told by colour alone.
+"""
+
+from __future__ import annotations
+
+import html
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from ..engine import nca_arrays
+from ..qc import FLAGS, QCThresholds, flag_message
+
+__all__ = [
+    "ROLE_STYLE", "PointView", "ProfileView", "compute_profile", "profile_view", "toggle_time",
+    "window_from_brush", "readout_rows", "readout_html", "flag_words", "overview_svg",
+    "needs_review", "key_label", "choice_summary",
+]
+
+#: Okabe–Ito colours (hex as published) with a marker shape and a legend word per role.
+ROLE_STYLE = {
+    "fit": {"colour": "#0072B2", "marker": "circle", "label": "in the λz fit"},
+    "other": {"colour": "#000000", "marker": "square", "label": "other observation"},
+    "excluded": {"colour": "#D55E00", "marker": "cross", "label": "left out by hand"},
+    "blq": {"colour": "#CC79A7", "marker": "triangle-down", "label": "below LLOQ"},
+}
+LINE_COLOUR = "#009E73"
+REVIEW_COLOUR = "#E69F00"
+#: How far the dashed tail is drawn beyond the last measurable time, in half-lives.
+TAIL_HALF_LIVES = 3.0
+
+
+@dataclass
+class ProfileView:
+    """Everything the picker draws for one profile (plain arrays and text)."""
+
+    points: dict  # role -> {"x": times, "y": plotted conc, "index": input sample index}
+    fit_x: np.ndarray
+    fit_y: np.ndarray
+    tail_x: np.ndarray
+    tail_y: np.ndarray
+    window: tuple | None
+    readout: list = field(default_factory=list)
+    flags: list = field(default_factory=list)
+
+
+PointView = dict
+
+
+def compute_profile(time, conc, *, blq=None, lloq=None, window=None, excluded=(), options=None):
+    """Run the engine on one profile with a window and excluded times.
+
+    Parameters
+    ----------
+    time, conc : array_like, 1-D
+        Times after the dose and concentrations (NaN-padded allowed).
+    blq : array_like of bool, optional
+    lloq : float or array_like, optional
+    window : (start, end) or None
+        None: automatic lambda-z search.
+    excluded : sequence of float
+        Sampling times left out of the fit.
+    options : dict, optional
+        Further keywords of :func:`pkwidgets.nca_arrays` (``dose``,
+        ``route``, ``auc_method``, ``blq_rules``, ``qc``...).
+
+    Returns
+    -------
+    ArrayResult
+        For one profile (arrays of length 1).
+    """
+    t = np.asarray(time, dtype=np.float64)
+    excl = np.zeros(t.shape, dtype=bool)
+    for x in excluded:
+        excl |= np.isclose(t, float(x), rtol=1e-9, atol=1e-12)
+    terminal = "auto" if window is None else (float(window[0]), float(window[1]))
+    return nca_arrays(t, conc, blq=blq, lloq=lloq, terminal=terminal, exclude=excl, **(options or {}))
+
+
+def _plot_conc(conc, blq, lloq, positive_floor):
+    """y positions: measured values; BLQ at the LLOQ if known, else half the smallest positive value."""
+    c = np.asarray(conc, dtype=np.float64)
+    lq = np.broadcast_to(np.asarray(np.nan if lloq is None else lloq, dtype=np.float64), c.shape)
+    y = np.where(blq, np.where(np.isfinite(lq) & (lq > 0), lq, positive_floor / 2.0), c)
+    return y
+
+
+def profile_view(time, conc, result, *, blq=None, lloq=None, excluded=(), window=None, log_scale=True,
+                 qc=None):
+    r"""Map one profile's engine result to drawable arrays and readout text.
+
+    Roles: ``fit`` (used in the lambda-z fit), ``excluded`` (left out by
+    hand), ``blq`` (below the LLOQ, drawn at the LLOQ), ``other`` (every
+    other observation with a time).  On a log axis, zero concentrations
+    cannot be drawn and are left out of ``other`` (they still count in the
+    AUC).  The fitted line runs over the fit interval,
+    :math:`\hat C(t) = e^{a - \lambda_z t}`; the dashed tail continues it
+    from TLST for ``TAIL_HALF_LIVES`` half-lives to suggest the area out to
+    infinity (:math:`C_{last}/\lambda_z`).
+    """
+    t = np.asarray(time, dtype=np.float64)
+    c = np.asarray(conc, dtype=np.float64)
+    b = np.zeros(t.shape, dtype=bool) if blq is None else np.asarray(blq, dtype=bool)
+    present = ~np.isnan(t)
+    used = np.asarray(result.lambda_z_used[0], dtype=bool)
+    excl = np.zeros(t.shape, dtype=bool)
+    for x in excluded:
+        excl |= np.isclose(t, float(x), rtol=1e-9, atol=1e-12)
+    pos = c[present & ~b & (c > 0)] if np.any(present & ~b) else np.array([])
+    floor = float(np.min(pos)) if pos.size else 1.0
+    y = _plot_conc(c, b, lloq, floor)
+    drawable = present & np.isfinite(y) & ((y > 0) if log_scale else True)
+    roles = {
+        "fit": drawable & used,
+        "excluded": drawable & excl & ~b,
+        "blq": drawable & b,
+    }
+    roles["other"] = drawable & ~roles["fit"] & ~roles["excluded"] & ~roles["blq"]
+    points = {r: {"x": t[m], "y": y[m], "index": np.flatnonzero(m)} for r, m in roles.items()}
+
+    lamz = float(result["LAMZ"][0])
+    lo, hi = float(result["LAMZLL"][0]), float(result["LAMZUL"][0])
+    empty = np.array([])
+    fit_x = fit_y = tail_x = tail_y = empty
+    if math.isfinite(lamz) and lamz > 0:
+        # intercept a from CLSTP = exp(a - lamz * TLST)
+        tlst = float(result["TLST"][0])
+        clstp = float(result["CLSTP"][0])
+        a = math.log(clstp) + lamz * tlst
+        fit_x = np.linspace(lo, hi, 24)
+        fit_y = np.exp(a - lamz * fit_x)
+        tail_x = np.linspace(tlst, tlst + TAIL_HALF_LIVES * math.log(2.0) / lamz, 24)
+        tail_y = np.exp(a - lamz * tail_x)
+    flags = [name for name in FLAGS if bool(result.flags[name][0])]
+    return ProfileView(points=points, fit_x=fit_x, fit_y=fit_y, tail_x=tail_x, tail_y=tail_y,
+                       window=window, readout=readout_rows(result), flags=flag_words(flags, qc))
+
+
+def _fmt(x, digits=4):
+    x = float(x)
+    if not math.isfinite(x):
+        return "—"
+    return f"{x:.{digits}g}"
+
+
+def readout_rows(result):
+    """(label, value text) pairs of the live readout for a one-profile result."""
+    g = {k: float(result[k][0]) for k in ("LAMZ", "LAMZHL", "R2ADJ", "LAMZNPT", "LAMZSPN", "LAMZLL",
+                                           "LAMZUL", "AUCIFO", "AUCPEO", "AUCLST")}
+    n = g["LAMZNPT"]
+    window = "—" if not math.isfinite(g["LAMZLL"]) else f"{_fmt(g['LAMZLL'])} to {_fmt(g['LAMZUL'])}"
+    return [
+        ("λz (1/time)", _fmt(g["LAMZ"])),
+        ("half-life", _fmt(g["LAMZHL"])),
+        ("adjusted R²", "—" if not math.isfinite(g["R2ADJ"]) else f"{g['R2ADJ']:.4f}"),
+        ("points in fit", str(int(n)) if math.isfinite(n) else "0"),
+        ("fit from … to", window),
+        ("span (half-lives)", _fmt(g["LAMZSPN"], 3)),
+        ("AUC to last", _fmt(g["AUCLST"])),
+        ("AUC to ∞ (AUCIFO)", _fmt(g["AUCIFO"])),
+        ("extrapolated share", "—" if not math.isfinite(g["AUCPEO"]) else f"{g['AUCPEO']:.1f} %"),
+    ]
+
+
+def flag_words(names, qc=None):
+    """Flag names -> list of (severity, message) in words, review flags first."""
+    q = qc or QCThresholds()
+    items = [(FLAGS[n][0], flag_message(n, q)) for n in names]
+    return sorted(items, key=lambda it: it[0] != "review")
+
+
+def readout_html(rows, flags, status=""):
+    """HTML of the readout: a two-column table, then the flags as a list, then a status line."""
+    cells = "".join(
+        f"<tr><th style='text-align:left;font-weight:normal;padding-right:1em'>{html.escape(k)}</th>"
+        f"<td class='pkw-value' style='text-align:right;font-variant-numeric:tabular-nums'>{html.escape(v)}</td></tr>"
+        for k, v in rows)
+    if flags:
+        lis = "".join(
+            f"<li><b>{'needs review' if sev == 'review' else 'note'}:</b> {html.escape(msg)}</li>"
+            for sev, msg in flags)
+        fl = f"<ul class='pkw-flags' style='margin:0.3em 0;padding-left:1.2em'>{lis}</ul>"
+    else:
+        fl = "<p class='pkw-flags' style='margin:0.3em 0'>No checks raised.</p>"
+    st = f"<p class='pkw-status' style='margin:0.3em 0'>{html.escape(status)}</p>" if status else ""
+    return f"<div class='pkw-readout'><table>{cells}</table>{fl}{st}</div>"
+
+
+def toggle_time(excluded, t):
+    """Add ``t`` to the excluded times, or remove it when it is already there (sorted list)."""
+    t = float(t)
+    keep = [float(x) for x in excluded if not math.isclose(float(x), t, rel_tol=1e-9, abs_tol=1e-12)]
+    if len(keep) == len(list(excluded)):
+        keep.append(t)
+    return sorted(keep)
+
+
+def window_from_brush(selected, times):
+    """Fit window from a brushed time interval: snapped to the sampling times it contains.
+
+    Returns None when fewer than two sampling times lie inside (no window).
+    """
+    if selected is None or len(selected) != 2:
+        return None
+    lo, hi = sorted(float(v) for v in selected)
+    t = np.asarray(times, dtype=np.float64)
+    inside = t[(t >= lo) & (t <= hi)]
+    if inside.size < 2:
+        return None
+    return (float(inside.min()), float(inside.max()))
+
+
+def needs_review(flags_row):
+    """True if any raised flag has severity "review" (``flags_row``: iterable of names)."""
+    return any(FLAGS[n][0] == "review" for n in flags_row)
+
+
+def key_label(key, by):
+    """'Subject 1' or 'Subject 1 · Period 2' for a canonical key tuple."""
+    return " · ".join(f"{b} {k}" for b, k in zip(by, key))
+
+
+def choice_summary(window, excluded):
+    """Words for the current choice, e.g. 'window 2 to 24; left out: 9'."""
+    parts = ["automatic search" if window is None else f"window {_fmt(window[0])} to {_fmt(window[1])}"]
+    if excluded:
+        parts.append("left out: " + ", ".join(_fmt(x) for x in excluded))
+    return "; ".join(parts)
+
+
+def overview_svg(labels, times, concs, used, review, current=None, *, columns=8, cell=(92, 62)):
+    """Small multiples of every profile as one inline SVG (semi-log sparklines).
+
+    A profile needing review gets a thick dashed orange frame and a "!"
+    badge (never colour alone); the current profile a thick black frame.
+    Fit points are filled blue circles, the others small grey dots.
+    """
+    w, h = cell
+    n = len(labels)
+    rows = max(1, math.ceil(n / columns))
+    out = [f"<svg xmlns='http://www.w3.org/2000/svg' width='{columns * w}' height='{rows * h}' "
+           f"role='img' aria-label='overview of all profiles' style='font:10px sans-serif'>"]
+    for i in range(n):
+        x0, y0 = (i % columns) * w, (i // columns) * h
+        t = np.asarray(times[i], dtype=np.float64)
+        c = np.asarray(concs[i], dtype=np.float64)
+        ok = np.isfinite(t) & np.isfinite(c) & (c > 0)
+        frame_style = "stroke:#000;stroke-width:1"
+        if review[i]:
+            frame_style = f"stroke:{REVIEW_COLOUR};stroke-width:3;stroke-dasharray:5,3"
+        if current is not None and i == current:
+            frame_style = "stroke:#000;stroke-width:3"
+        out.append(f"<g transform='translate({x0},{y0})'><title>{html.escape(labels[i])}"
+                   f"{' — needs review' if review[i] else ''}</title>")
+        out.append(f"<rect x='2' y='2' width='{w - 4}' height='{h - 4}' fill='#fff' style='{frame_style}'/>")
+        if ok.sum() >= 1:
+            tt, lc = t[ok], np.log(c[ok])
+            tspan = max(float(np.ptp(tt)), 1e-12)
+            cspan = max(float(np.ptp(lc)), 1e-12)
+            px = 8 + (tt - tt.min()) / tspan * (w - 16)
+            py = (h - 8) - (lc - lc.min()) / cspan * (h - 26)
+            pts = " ".join(f"{a:.1f},{b:.1f}" for a, b in zip(px, py))
+            out.append(f"<polyline points='{pts}' fill='none' stroke='#999' stroke-width='1'/>")
+            u = np.asarray(used[i], dtype=bool)[ok]
+            for a, b, inu in zip(px, py, u):
+                if inu:
+                    out.append(f"<circle cx='{a:.1f}' cy='{b:.1f}' r='2.5' fill='{ROLE_STYLE['fit']['colour']}'/>")
+                else:
+                    out.append(f"<circle cx='{a:.1f}' cy='{b:.1f}' r='1.5' fill='#777'/>")
+        label = html.escape(labels[i]) + (" !" if review[i] else "")
+        out.append(f"<text x='6' y='13'>{label}</text></g>")
+    out.append("</svg>")
+    return "".join(out)
+
+
+def click_action(role, t, window, excluded, fit_range):
+    """What a click on a point at time ``t`` does; returns the new (window, excluded).
+
+    - a point in the fit is left out (added to ``excluded``);
+    - a point left out by hand is taken back;
+    - any other observation is brought into the fit: the window widens to
+      reach it (from the current fit interval ``fit_range``, or the window).
+    - a BLQ sample cannot enter the fit: nothing changes.
+    """
+    excluded = [float(x) for x in excluded]
+    if role in ("fit", "excluded"):
+        return window, toggle_time(excluded, t)
+    if role == "other":
+        base = window if window is not None else fit_range
+        if base is None or not all(math.isfinite(v) for v in base):
+            return window, excluded
+        return (min(float(base[0]), float(t)), max(float(base[1]), float(t))), excluded
+    return window, excluded

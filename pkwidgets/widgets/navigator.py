@@ -1,0 +1,181 @@
+"""Study navigator: one picker, stepping through every profile of a study.
+
+The study is analysed once with :func:`pkwidgets.nca` (applying the
+selection record); the picker shows one profile as that run saw it.  After
+a choice is recorded, or a method toggled, the study is analysed again so
+that the overview and the review filter stay true.
+"""
+
+from __future__ import annotations
+
+import ipywidgets as widgets
+import numpy as np
+import traitlets
+
+from ..record import SelectionRecord, coerce_record
+from ..table import nca
+from . import _view as V
+from .picker import TerminalPhasePicker
+from .toggles import MethodToggles
+
+__all__ = ["StudyNavigator", "TABLE_ONLY_OPTIONS"]
+
+#: nca() keywords that describe the table, not the computation of one profile.
+TABLE_ONLY_OPTIONS = ("time", "conc", "dose", "blq", "lloq", "dose_time", "units", "terminal", "exclude",
+                      "duration", "tau", "sep", "decimal", "encoding", "occasion")
+
+
+def profile_options(nca_options, inputs, p):
+    """Keywords of :func:`pkwidgets.nca_arrays` for profile ``p`` of a run's ``inputs``."""
+    opts = {k: v for k, v in nca_options.items() if k not in TABLE_ONLY_OPTIONS}
+    for name in ("dose", "duration", "tau"):
+        arr = inputs.get(name)
+        if arr is not None:
+            opts[name] = float(np.asarray(arr)[p])
+    return opts
+
+
+def review_order(review, only_review):
+    """Indices of the profiles to step through."""
+    idx = np.flatnonzero(review) if only_review else np.arange(len(review))
+    return [int(i) for i in idx]
+
+
+def step(order, current, delta):
+    """Next/previous position in ``order`` from ``current`` (clamped; first if current is not in it)."""
+    if not order:
+        return current
+    if current not in order:
+        return order[0]
+    k = order.index(current) + delta
+    return order[min(max(k, 0), len(order) - 1)]
+
+
+class StudyNavigator(widgets.VBox):
+    """Pick, justify and record terminal phases profile by profile.
+
+    Parameters
+    ----------
+    data : DataFrame or path of a CSV file
+    by : str or list of str
+        Columns that identify a profile.
+    selections : SelectionRecord or path, optional
+        The record choices are saved to; a path that does not exist yet is
+        created on the first save.  Without it choices stay in memory.
+    author : str, optional
+        Name written with each choice (default: the USER environment variable).
+    **nca_options
+        Keywords of :func:`pkwidgets.nca` (``time=``, ``conc=``, ``dose=``,
+        ``route=``, ``auc_method=``...).
+    """
+
+    index = traitlets.Int(0, help="position of the profile shown (row of the study table)")
+    only_review = traitlets.Bool(False, help="step only through profiles that need review")
+
+    def __init__(self, data, *, by, selections=None, author=None, **nca_options):
+        self._data = data
+        self.by = [by] if isinstance(by, str) else list(by)
+        self.record = coerce_record(selections) if selections is not None else SelectionRecord()
+        self._nca_options = dict(nca_options)
+        self.toggles = MethodToggles(auc_method=nca_options.get("auc_method", "linear"),
+                                     blq_rules=nca_options.get("blq_rules"))
+        self._run()
+        self.labels = [V.key_label(k, self.by) for k in self.profile_keys]
+        self.picker = TerminalPhasePicker([0.0], [1.0], record=self.record, author=author)
+        self._prev = widgets.Button(description="previous", icon="arrow-left")
+        self._next = widgets.Button(description="next", icon="arrow-right")
+        self._jump = widgets.Dropdown(options=list(zip(self.labels, range(len(self.labels)))), value=0,
+                                      description="go to", layout=widgets.Layout(width="260px"))
+        self._only = widgets.Checkbox(value=False, description="only profiles needing review", indent=False)
+        self._count = widgets.HTML()
+        self.overview = widgets.HTML(layout=widgets.Layout(overflow="auto"))
+        self._prev.on_click(lambda _: self._step(-1))
+        self._next.on_click(lambda _: self._step(+1))
+        traitlets.link((self._jump, "value"), (self, "index"))
+        traitlets.link((self._only, "value"), (self, "only_review"))
+        super().__init__([
+            widgets.HBox([self._prev, self._next, self._jump, self._only, self._count]),
+            self.toggles,
+            self.picker,
+            widgets.HTML("<b>All profiles</b> (dashed orange frame and “!”: needs review; thick black frame: shown)"),
+            self.overview,
+        ])
+        self.add_class("pkw-navigator")
+        self.observe(self._show, names=["index"])
+        self.observe(self._filter_changed, names=["only_review"])
+        self.toggles.observe(self._methods_changed, names=["options"])
+        self.picker.observe(self._saved, names=["revision"])
+        self._show(None)
+
+    # ------------------------------------------------------------ analysis
+    def _run(self):
+        opts = dict(self._nca_options, **self.toggles.options)
+        self.table = nca(self._data, by=self.by, selections=self.record, **opts)
+        self.inputs = self.table.record.inputs
+        self.profile_keys = self.inputs["keys"]
+        flags = self.table.qc_flags
+        names = [[] for _ in self.profile_keys]
+        if len(flags):
+            pos = {k: i for i, k in enumerate(self.profile_keys)}
+            from ..record import canonical_key
+            for row in flags[self.by + ["flag"]].itertuples(index=False):
+                names[pos[canonical_key(tuple(row[:-1]))]].append(row[-1])
+        self.flag_names = names
+        self.review = [V.needs_review(n) for n in names]
+
+    def _used(self):
+        return self.inputs["lambda_z_used"]
+
+    # ------------------------------------------------------------- display
+    def _show(self, _):
+        p = self.index
+        st = self.record.state(self.profile_keys[p])
+        window, excluded, status = None, [], ""
+        if st is not None:
+            fp = self.table.settings["selections"]["fingerprints"][p]
+            if st.fingerprint == fp:
+                window, excluded = st.window, st.exclude
+                status = f"recorded by {st['author']} ({st['timestamp']}): {st['reason']}"
+            else:
+                status = "the recorded choice was made on other data: automatic shown; review and record again"
+        inp = self.inputs
+        self.picker.load(inp["time"][p], inp["conc"][p], blq=inp["blq"][p], lloq=inp["lloq"][p],
+                         key=self.profile_keys[p], window=window, excluded=excluded, title=self.labels[p],
+                         status=status, **profile_options(dict(self._nca_options, **self.toggles.options),
+                                                          inp, p))
+        self._render_overview()
+
+    def _render_overview(self):
+        order = review_order(self.review, self.only_review)
+        self._count.value = (f"{len(order)} of {len(self.profile_keys)} profiles shown; "
+                             f"{int(np.sum(self.review))} need review")
+        used = self._overview_used if hasattr(self, "_overview_used") else self._refresh_used()
+        self.overview.value = V.overview_svg(self.labels, list(self.inputs["time"]), list(self.inputs["conc"]),
+                                             list(used), self.review, current=self.index)
+
+    def _refresh_used(self):
+        self._overview_used = self._used()
+        return self._overview_used
+
+    def _step(self, delta):
+        self.index = step(review_order(self.review, self.only_review), self.index, delta)
+
+    def _filter_changed(self, _):
+        order = review_order(self.review, self.only_review)
+        labels = [(self.labels[i], i) for i in order] or [(self.labels[self.index], self.index)]
+        cur = self.index if self.index in order or not order else order[0]
+        with self._jump.hold_trait_notifications():
+            self._jump.options = labels
+            self._jump.value = cur
+        self.index = cur
+        self._render_overview()
+
+    def _methods_changed(self, _):
+        self._run()
+        self._refresh_used()
+        self._show(None)
+
+    def _saved(self, _):
+        self._run()
+        self._refresh_used()
+        self._render_overview()

@@ -1,0 +1,259 @@
+"""Terminal-phase picker for one profile (ipywidgets + bqplot).
+
+Callbacks only read trait values and call the pure helpers of
+:mod:`pkwidgets.widgets._view`; the engine does the arithmetic.  The brush
+recomputes once, when the drag ends (``brushing`` turns False).
+"""
+
+from __future__ import annotations
+
+import bqplot as bq
+import ipywidgets as widgets
+import numpy as np
+import traitlets
+
+from ..record import SelectionRecord, profile_fingerprint
+from . import _view as V
+
+__all__ = ["TerminalPhasePicker"]
+
+_ROLES = ("other", "blq", "excluded", "fit")
+
+
+class TerminalPhasePicker(widgets.VBox):
+    """Choose the lambda-z points of one profile by clicking and dragging.
+
+    Parameters
+    ----------
+    time, conc : array_like, 1-D
+        Times after the dose and concentrations (NaN-padded allowed).
+    blq : array_like of bool, optional
+    lloq : float or array_like, optional
+    key : profile key, optional
+        Used when saving to ``record`` (e.g. the subject).
+    record : SelectionRecord, optional
+        Where :meth:`save` writes the choice.
+    window, excluded : optional
+        Starting choice (default automatic, nothing left out).
+    **options
+        Keywords of :func:`pkwidgets.nca_arrays` (``dose``, ``route``,
+        ``duration``, ``tau``, ``auc_method``, ``blq_rules``, ``qc``).
+    """
+
+    window = traitlets.Tuple(None, allow_none=True, help="lambda-z window (start, end); None = automatic")
+    excluded = traitlets.List(traitlets.Float(), help="sampling times left out of the fit")
+    log_scale = traitlets.Bool(True, help="semi-log view (True) or linear view")
+    auc_method = traitlets.Unicode("linear", help="AUC method passed to the core")
+    blq_rules = traitlets.Dict(help="BLQ rules passed to the core")
+    status = traitlets.Unicode("", help="last message shown under the readout")
+    revision = traitlets.Int(0, help="incremented on every save to the record")
+
+    def __init__(self, time, conc, *, blq=None, lloq=None, key=None, record=None, window=None, excluded=(),
+                 title=None, author=None, **options):
+        self.record = record
+        self.author = author
+        self._xs = bq.LinearScale()
+        self._ys = {True: bq.LogScale(), False: bq.LinearScale()}
+        ys = self._ys[True]
+        self._marks = {}
+        for role in _ROLES:
+            st = V.ROLE_STYLE[role]
+            m = bq.Scatter(x=[], y=[], scales={"x": self._xs, "y": ys}, marker=st["marker"],
+                           colors=[st["colour"]], default_size=90 if role != "fit" else 110,
+                           stroke=st["colour"], labels=[st["label"]], display_legend=True,
+                           interactions={"click": "select"}, selected_style={"opacity": 1.0},
+                           unselected_style={"opacity": 1.0})
+            m.on_element_click(self._make_click(role))
+            self._marks[role] = m
+        self._fit_line = bq.Lines(x=[], y=[], scales={"x": self._xs, "y": ys}, colors=[V.LINE_COLOUR],
+                                  stroke_width=2.5, labels=["λz fit"], display_legend=True)
+        self._tail_line = bq.Lines(x=[], y=[], scales={"x": self._xs, "y": ys}, colors=[V.LINE_COLOUR],
+                                   stroke_width=1.5, line_style="dashed", labels=["tail toward ∞"],
+                                   display_legend=True)
+        self._xaxis = bq.Axis(scale=self._xs, label="time after dose", grid_lines="none",
+                              label_offset="35px")
+        self._yaxis = bq.Axis(scale=ys, side="left", label="concentration (log scale)",
+                              grid_lines="dashed", tick_format=".3g", label_offset="60px")
+        self._brush = bq.interacts.BrushIntervalSelector(scale=self._xs, color="#56B4E9")
+        self._brush.observe(self._brushed, names=["brushing"])
+        self.figure = bq.Figure(
+            marks=[self._fit_line, self._tail_line] + [self._marks[r] for r in _ROLES],
+            axes=[self._xaxis, self._yaxis], legend_location="bottom-left", title=title or "",
+            fig_margin={"top": 40, "bottom": 50, "left": 80, "right": 20},
+            layout=widgets.Layout(width="620px", height="400px"),
+            legend_style={"fill": "white", "stroke": "#999"},
+        )
+        self._mode = widgets.ToggleButtons(
+            options=[("click points", "click"), ("drag a window", "brush")], value="click",
+            tooltips=["click a point: leave it out / take it back / bring it into the fit",
+                      "drag across the time axis: fit the points inside"],
+            style={"button_width": "110px"})
+        self._mode.observe(self._mode_changed, names=["value"])
+        self._scale = widgets.ToggleButtons(options=[("log scale", True), ("linear scale", False)], value=True,
+                                            style={"button_width": "95px"})
+        traitlets.link((self._scale, "value"), (self, "log_scale"))
+        self._auto = widgets.Button(description="back to automatic", icon="undo",
+                                    tooltip="automatic terminal-phase search, nothing left out")
+        self._auto.on_click(self._to_automatic)
+        self._reason = widgets.Text(placeholder="why this choice (required to save)",
+                                    layout=widgets.Layout(width="300px"))
+        self._save = widgets.Button(description="record choice", icon="save", button_style="primary")
+        self._save.on_click(self._save_clicked)
+        self.readout = widgets.HTML(layout=widgets.Layout(width="330px"))
+        super().__init__([
+            widgets.HBox([self._mode, self._scale, self._auto]),
+            widgets.HBox([self.figure, self.readout]),
+            widgets.HBox([self._reason, self._save]),
+        ])
+        self.add_class("pkw-picker")
+        self.observe(self._recompute, names=["window", "excluded", "auc_method", "blq_rules"])
+        self.observe(self._scale_changed, names=["log_scale"])
+        self.observe(self._redraw_readout, names=["status"])
+        self.load(time, conc, blq=blq, lloq=lloq, key=key, window=window, excluded=excluded, title=title,
+                  **options)
+
+    # ------------------------------------------------------------------ data
+    def load(self, time, conc, *, blq=None, lloq=None, key=None, window=None, excluded=(), title=None,
+             status="", **options):
+        """Show another profile (keeps the figure; one recompute)."""
+        self._time = np.asarray(time, dtype=np.float64)
+        self._conc = np.asarray(conc, dtype=np.float64)
+        self._blq = None if blq is None else np.asarray(blq, dtype=bool)
+        self._lloq = lloq
+        self.key = key
+        self.fingerprint = profile_fingerprint(self._time, self._conc, self._blq)
+        auc_method = options.pop("auc_method", self.auc_method)
+        blq_rules = dict(options.pop("blq_rules", None) or self.blq_rules or {})
+        self._options = options
+        if title is not None:
+            self.figure.title = title
+        self._loading = True
+        try:
+            self.auc_method, self.blq_rules = auc_method, blq_rules
+            self.window = None if window is None else (float(window[0]), float(window[1]))
+            self.excluded = sorted(float(x) for x in excluded)
+            self.status = status
+        finally:
+            self._loading = False
+        self._recompute(None)
+
+    @property
+    def options(self) -> dict:
+        """Core keywords in force (``auc_method``, ``blq_rules`` and the profile's options)."""
+        return dict(self._options, auc_method=self.auc_method, blq_rules=dict(self.blq_rules) or None)
+
+    # ------------------------------------------------------------- callbacks
+    def _recompute(self, _):
+        if getattr(self, "_loading", True):
+            return
+        try:
+            self.result = V.compute_profile(self._time, self._conc, blq=self._blq, lloq=self._lloq,
+                                            window=self.window, excluded=self.excluded, options=self.options)
+        except ValueError as exc:  # shown, never raised out of a callback
+            self.status = f"not computed: {exc}"
+            return
+        self.view = V.profile_view(self._time, self._conc, self.result, blq=self._blq, lloq=self._lloq,
+                                   excluded=self.excluded, window=self.window, log_scale=self.log_scale,
+                                   qc=self._options.get("qc"))
+        self._draw()
+
+    def _draw(self):
+        v = self.view
+        for role, m in self._marks.items():
+            with m.hold_sync():
+                m.x, m.y = v.points[role]["x"], v.points[role]["y"]
+                m.selected = None
+        with self._fit_line.hold_sync():
+            self._fit_line.x, self._fit_line.y = v.fit_x, v.fit_y
+        with self._tail_line.hold_sync():
+            self._tail_line.x, self._tail_line.y = v.tail_x, v.tail_y
+        self._redraw_readout(None)
+
+    def _redraw_readout(self, _):
+        if getattr(self, "_loading", True):
+            return
+        choice = V.choice_summary(self.window, self.excluded)
+        view = getattr(self, "view", None)
+        rows = ([("choice", choice)] + view.readout) if view else [("choice", choice)]
+        self.readout.value = V.readout_html(rows, view.flags if view else [], self.status)
+
+    def _make_click(self, role):
+        def clicked(_mark, event):
+            i = event["data"]["index"]
+            t = self.view.points[role]["x"][i]
+            if role == "blq":
+                self.status = "samples below the LLOQ never enter the λz fit"
+                return
+            fit_range = (float(self.result["LAMZLL"][0]), float(self.result["LAMZUL"][0]))
+            window, excluded = V.click_action(role, t, self.window, self.excluded, fit_range)
+            with self.hold_trait_notifications():
+                self.window, self.excluded = window, excluded
+        return clicked
+
+    def _brushed(self, change):
+        if change["new"]:  # still dragging: nothing to do until the drag ends
+            return
+        w = V.window_from_brush(self._brush.selected, self._time)
+        if w is None:
+            self.status = "the dragged interval holds fewer than two samples: window unchanged"
+            return
+        self.window = w
+
+    def _mode_changed(self, change):
+        self.figure.interaction = self._brush if change["new"] == "brush" else None
+
+    def _scale_changed(self, change):
+        ys = self._ys[change["new"]]
+        for m in list(self._marks.values()) + [self._fit_line, self._tail_line]:
+            m.scales = {"x": self._xs, "y": ys}
+        self._yaxis.scale = ys
+        self._yaxis.label = "concentration (log scale)" if change["new"] else "concentration"
+        self._recompute(None)
+
+    def _to_automatic(self, _):
+        with self.hold_trait_notifications():
+            self.window, self.excluded = None, []
+        self.status = "automatic search"
+
+    def _save_clicked(self, _):
+        try:
+            self.status = self.save(self._reason.value)
+            self._reason.value = ""
+        except ValueError as exc:
+            self.status = str(exc)
+
+    # --------------------------------------------------------------- record
+    def save(self, reason, author=None) -> str:
+        """Append the current choice to the record (and write its file, if it has one).
+
+        Returns the message shown to the user.  Raises ``ValueError`` for an
+        empty reason or when no record is attached.
+        """
+        rec: SelectionRecord = self.record
+        if rec is None:
+            raise ValueError("no selection record attached: pass record= (or selections= to the navigator).")
+        if not reason or not reason.strip():
+            raise ValueError("write a short reason before recording the choice.")
+        author = author or self.author
+        kw = {"fingerprint": self.fingerprint}
+        prev = rec.state(self.key)
+        fresh = prev is not None and prev.fingerprint == self.fingerprint
+        prev_window = prev.window if fresh else None
+        prev_excl = prev.exclude if fresh else []
+        if self.window is None and not self.excluded:
+            rec.reset(self.key, reason, author, **kw)
+        else:
+            if self.window != prev_window:
+                if self.window is None:
+                    rec.reset(self.key, reason, author, **kw)
+                    prev_excl = []
+                else:
+                    rec.set_window(self.key, self.window[0], self.window[1], reason, author, **kw)
+            if list(self.excluded) != prev_excl:
+                rec.set_exclusions(self.key, self.excluded, reason, author, **kw)
+        where = ""
+        if rec.path is not None:
+            rec.save()
+            where = f" in {rec.path}"
+        self.revision += 1
+        return f"recorded{where}: {V.choice_summary(self.window, self.excluded)}"

