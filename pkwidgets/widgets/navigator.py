@@ -12,7 +12,7 @@ import ipywidgets as widgets
 import numpy as np
 import traitlets
 
-from ..record import SelectionRecord, coerce_record
+from ..record import SelectionRecord, canonical_key, coerce_record
 from ..table import nca
 from . import _view as V
 from .picker import TerminalPhasePicker
@@ -33,6 +33,20 @@ def profile_options(nca_options, inputs, p):
         if arr is not None:
             opts[name] = float(np.asarray(arr)[p])
     return opts
+
+
+def flags_by_profile(qc_flags, by, keys):
+    """List of raised flag names per profile, in the order of ``keys`` (canonical key tuples)."""
+    names = [[] for _ in keys]
+    pos = {k: i for i, k in enumerate(keys)}
+    for row in qc_flags[list(by) + ["flag"]].itertuples(index=False):
+        names[pos[canonical_key(tuple(row[:-1]))]].append(row[-1])
+    return names
+
+
+def count_text(n_shown, n_total, review):
+    """The line beside the navigation buttons."""
+    return f"{n_shown} of {n_total} profiles shown; {int(np.sum(review))} need review"
 
 
 def review_order(review, only_review):
@@ -113,15 +127,8 @@ class StudyNavigator(widgets.VBox):
         self.table = nca(self._data, by=self.by, selections=self.record, **opts)
         self.inputs = self.table.record.inputs
         self.profile_keys = self.inputs["keys"]
-        flags = self.table.qc_flags
-        names = [[] for _ in self.profile_keys]
-        if len(flags):
-            pos = {k: i for i, k in enumerate(self.profile_keys)}
-            from ..record import canonical_key
-            for row in flags[self.by + ["flag"]].itertuples(index=False):
-                names[pos[canonical_key(tuple(row[:-1]))]].append(row[-1])
-        self.flag_names = names
-        self.review = [V.needs_review(n) for n in names]
+        self.flag_names = flags_by_profile(self.table.qc_flags, self.by, self.profile_keys)
+        self.review = [V.needs_review(n) for n in self.flag_names]
 
     def _used(self):
         return self.inputs["lambda_z_used"]
@@ -147,8 +154,7 @@ class StudyNavigator(widgets.VBox):
 
     def _render_overview(self):
         order = review_order(self.review, self.only_review)
-        self._count.value = (f"{len(order)} of {len(self.profile_keys)} profiles shown; "
-                             f"{int(np.sum(self.review))} need review")
+        self._count.value = count_text(len(order), len(self.profile_keys), self.review)
         used = self._overview_used if hasattr(self, "_overview_used") else self._refresh_used()
         self.overview.value = V.overview_svg(self.labels, list(self.inputs["time"]), list(self.inputs["conc"]),
                                              list(used), self.review, current=self.index)
