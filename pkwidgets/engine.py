@@ -23,6 +23,8 @@ Steps, per chunk of profiles, all vectorised:
 
 from __future__ import annotations
 
+import os
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
 
 import numpy as np
@@ -37,8 +39,12 @@ __all__ = ["nca_arrays", "ArrayResult", "ROUTES"]
 
 ROUTES = ("extravascular", "iv-bolus", "iv-infusion")
 _LN2 = np.log(2.0)
-#: Profiles per chunk: keeps temporaries in cache and memory bounded.
-CHUNK = 32768
+#: Profiles per chunk: keeps temporaries in cache and memory bounded (8192
+#: profiles x 17 float64 ~ 1 MB per temporary; larger chunks were 2-4 x slower
+#: on the benchmark, see ``bench/nca_speed.py``).
+CHUNK = 8192
+#: Threads over chunks (NumPy releases the GIL inside its loops); None = all cores.
+THREADS = None
 
 
 class ArrayResult(dict):
@@ -68,6 +74,7 @@ class _Options:
     method: str
     rules: BLQRules
     qc: QCThresholds
+    steady: bool = False  # any profile has tau: every chunk returns the steady-state codes
 
 
 def _as_2d(a, name):
@@ -101,8 +108,8 @@ def _per_profile(value, P, name, *, positive=False, allow_none=True):
 
 
 def _per_sample(value, shape, name, dtype):
-    if value is None:
-        return np.zeros(shape, dtype=dtype) if dtype is bool else np.full(shape, np.nan)
+    if value is None:  # a read-only broadcast view: no (profiles x samples) allocation
+        return np.broadcast_to(np.zeros((), dtype=bool) if dtype is bool else np.float64(np.nan), shape)
     a = np.asarray(value, dtype=dtype)
     if a.ndim == 1 and shape[0] == 1 and a.shape[0] == shape[1]:
         a = a[None, :]
@@ -139,13 +146,17 @@ def _validate(t, c, blq):
             f"conc is negative ({float(c[p, s])!r}) at profile {p}, sample {s}; concentrations must be >= 0 "
             "(mark values below the limit of quantitation with blq=True instead)."
         )
-    ts = np.sort(t, axis=1)
+    # rows whose times increase (then NaN padding) have no duplicates: sort only the others
+    with np.errstate(invalid="ignore"):
+        later = t[:, 1:]
+        unsorted = np.flatnonzero(~((later > t[:, :-1]) | np.isnan(later)).all(axis=1))
+    ts = np.sort(t[unsorted], axis=1)
     dup = (np.diff(ts, axis=1) == 0)
     if dup.any():
-        p, s = first(dup)
+        i, s = first(dup)
         raise ValueError(
-            f"time {float(ts[p, s])!r} appears twice in profile {p}; each profile needs distinct sampling times "
-            "(average replicates or drop one)."
+            f"time {float(ts[i, s])!r} appears twice in profile {int(unsorted[i])}; each profile needs distinct "
+            "sampling times (average replicates or drop one)."
         )
 
 
@@ -285,18 +296,17 @@ def nca_arrays(
     tau_a = _per_profile(tau, P, "tau", positive=True)
     lo, hi = _parse_terminal(terminal, P)
     parts = _parse_partial(partial, P)
+    opts.steady = bool(np.any(~np.isnan(tau_a)))
 
-    pieces = []
-    for s in range(0, P, CHUNK):
+    def run(s):
         sl = slice(s, min(P, s + CHUNK))
         try:
-            pieces.append(
-                _chunk(t[sl], c[sl], blq_a[sl], lloq_a[sl], excl[sl], dose_a[sl], dur[sl], tau_a[sl],
-                       lo[sl], hi[sl], [(n, a[sl], b[sl]) for n, a, b in parts], opts)
-            )
+            return _chunk(t[sl], c[sl], blq_a[sl], lloq_a[sl], excl[sl], dose_a[sl], dur[sl], tau_a[sl],
+                          lo[sl], hi[sl], [(n, a[sl], b[sl]) for n, a, b in parts], opts)
         except SampleValueError as exc:  # chunk-relative profile index -> index in the input
             raise exc.shifted(s) from None
-    params, flags, status, used = pieces[0] if len(pieces) == 1 else _concat(pieces)
+
+    params, flags, status, used = _run_chunks(run, P)
     out = ArrayResult(params)
     out.flags = flags
     out.status = status
@@ -311,11 +321,52 @@ def nca_arrays(
     return out
 
 
-def _concat(pieces):
-    params = {k: np.concatenate([p[0][k] for p in pieces]) for k in pieces[0][0]}
-    flags = {k: np.concatenate([p[1][k] for p in pieces]) for k in pieces[0][1]}
-    status = np.concatenate([p[2] for p in pieces])
-    used = np.concatenate([p[3] for p in pieces])
+def _run_chunks(run, P):
+    """Run ``run(start)`` over chunks of CHUNK profiles, writing into preallocated outputs.
+
+    The first chunk runs alone and fixes the output arrays; the others run on
+    a thread pool (NumPy releases the GIL in its loops) and each writes its own
+    rows, so no list of pieces is held and concatenated.  Results do not
+    depend on the number of threads or the chunk size; errors surface in
+    chunk order, as in a plain loop.
+    """
+    first = run(0)
+    if P <= CHUNK:
+        return first
+    params = {k: np.empty(P, dtype=v.dtype) for k, v in first[0].items()}
+    flags = {k: np.empty(P, dtype=v.dtype) for k, v in first[1].items()}
+    status = np.empty((P,) + first[2].shape[1:], dtype=first[2].dtype)
+    used = np.empty((P,) + first[3].shape[1:], dtype=first[3].dtype)
+
+    def store(s, piece):
+        sl = slice(s, s + piece[2].shape[0])
+        for k, v in piece[0].items():
+            params[k][sl] = v
+        for k, v in piece[1].items():
+            flags[k][sl] = v
+        status[sl] = piece[2]
+        used[sl] = piece[3]
+
+    def work(s):
+        store(s, run(s))
+
+    store(0, first)
+    del first
+    starts = range(CHUNK, P, CHUNK)
+    workers = max(1, min(THREADS or os.cpu_count() or 1, len(starts)))
+    if workers == 1:
+        for s in starts:
+            work(s)
+    else:
+        with ThreadPoolExecutor(max_workers=workers) as pool:
+            futures = [pool.submit(work, s) for s in starts]
+            try:
+                for f in futures:  # chunk order: the first failing chunk's error is raised
+                    f.result()
+            except BaseException:
+                for f in futures:
+                    f.cancel()
+                raise
     return params, flags, status, used
 
 
@@ -412,21 +463,21 @@ def _chunk(t, c, blq, lloq, excl, dose, dur, tau, lo, hi, parts, o):  # noqa: C9
     V = np.concatenate([c0[:, None], value], axis=1)
     U = np.concatenate([need0[:, None] & ~np.isnan(c0)[:, None], usable], axis=1)
     X = np.concatenate([np.zeros((P, 1), dtype=bool), excl], axis=1)
-    key = np.where(U, T, np.inf)
-    order = np.argsort(key, axis=1, kind="stable")
+    order = _sort_order(T, U)
     with np.errstate(invalid="ignore"):  # inf - inf between padding cells: NaN, not "out of order"
         flags["times_sorted"] = (np.diff(np.where(usable, t, np.nan), axis=1) < 0).any(axis=1) | (
             np.diff(np.where(present, t, np.inf), axis=1) < 0
         ).any(axis=1)
-    Ts = np.take_along_axis(T, order, axis=1)
-    Vs = np.take_along_axis(V, order, axis=1)
-    Us = np.take_along_axis(U, order, axis=1)
-    Xs = np.take_along_axis(X, order, axis=1)
+    M = N + 1
+    flat = order + (np.arange(P) * M)[:, None]  # positions in the flattened (P, M) arrays
+    Ts = T.reshape(-1).take(flat)
+    Vs = V.reshape(-1).take(flat)
+    Us = U.reshape(-1).take(flat)
+    Xs = X.reshape(-1).take(flat)
     added = order == 0
     Ts = np.where(Us, Ts, np.nan)
     Vs = np.where(Us, Vs, np.nan)
     nvalid = Us.sum(axis=1)
-    M = N + 1
     cols = np.arange(M)
 
     # 4. peak, last, lag ------------------------------------------------------
@@ -510,7 +561,7 @@ def _chunk(t, c, blq, lloq, excl, dose, dur, tau, lo, hi, parts, o):  # noqa: C9
     cum = _Cumulative(Ts, Vs, Us, A, is_log, TLST, CLST, AUCLST, LAMZ)
 
     # steady state ------------------------------------------------------------
-    if is_ss.any():
+    if o.steady:
         auctau, tau_extrap = cum.at(tau)
         CMIN = np.where(has_pos & is_ss, cmin_tau, np.nan)
         with np.errstate(divide="ignore", invalid="ignore"):
@@ -548,18 +599,40 @@ def _chunk(t, c, blq, lloq, excl, dose, dur, tau, lo, hi, parts, o):  # noqa: C9
         p[k] = np.where(has_pos, p[k], np.nan)
 
     # status and fit mask back in input order
-    src = order - 1  # input column of each sorted column; -1 = added point
     with np.errstate(invalid="ignore"):
         after_last = Us & (Ts > TLST[:, None]) & ~added
-    used_in = np.zeros((P, N), dtype=bool)
-    late = np.zeros((P, N), dtype=bool)
-    r, k = np.nonzero((src >= 0) & fit.used)
-    used_in[r, src[r, k]] = True
-    r, k = np.nonzero((src >= 0) & after_last)
-    late[r, src[r, k]] = True
+    back = np.empty(P * M, dtype=np.intp)  # flattened sorted position of each input column
+    back[flat.reshape(-1)] = np.arange(P * M)
+    back = back.reshape(P, M)[:, 1:]
+    used_in = np.ascontiguousarray(fit.used).reshape(-1).take(back)
+    late = after_last.reshape(-1).take(back)
     status[late & (status == S.USED)] = S.AFTER_TLAST
     status[~has_pos[:, None] & (status == S.USED) & present] = S.NO_MEASURABLE
     return p, flags, status, used_in
+
+
+def _sort_order(T, U):
+    """Per row, the stable argsort of T with the unusable cells (U False) moved to the end.
+
+    Rows whose usable times already increase (the usual case) are ordered by
+    a stable partition, O(samples); only the other rows are sorted.  Both
+    give exactly what ``np.argsort(np.where(U, T, inf), axis=1, kind="stable")``
+    gives.
+    """
+    P, M = T.shape
+    cols = np.arange(M)
+    nu = np.cumsum(U, axis=1)
+    dest = np.where(U, nu - 1, nu[:, -1:] + cols - nu)  # usable first, each group in input order
+    base = (np.arange(P) * M)[:, None]
+    order = np.empty((P, M), dtype=np.intp)
+    order.reshape(-1)[(dest + base).reshape(-1)] = np.tile(cols, P)
+    ts = np.ascontiguousarray(T).reshape(-1).take(order + base)
+    both_usable = cols[1:] < nu[:, -1:]
+    out_of_order = np.flatnonzero(((ts[:, 1:] <= ts[:, :-1]) & both_usable).any(axis=1))
+    if out_of_order.size:
+        key = np.where(U[out_of_order], T[out_of_order], np.inf)
+        order[out_of_order] = np.argsort(key, axis=1, kind="stable")
+    return order
 
 
 def _bolus_c0(t, value, usable):

@@ -53,8 +53,27 @@ class LambdaZFit:
     used: np.ndarray  # bool, same shape as the time array
 
 
-def _reverse_cumsum(a):
-    return np.cumsum(a[:, ::-1], axis=1)[:, ::-1]
+def _suffix_sums(x, y, candidate):
+    """Running sums from the end of n, x, y, x², xy, y², samples-major.
+
+    Returns an array of shape (samples, 6, profiles): entry ``[i, k, p]`` is
+    the k-th sum over the candidate points of profile ``p`` at or after
+    sample ``i``.  Samples-major layout makes each step of the running sum
+    one contiguous add over all profiles and all six sums (a cumulative sum
+    along short rows is several times slower); the additions happen in the
+    same order as ``cumsum`` from the end, so the sums are the same numbers.
+    """
+    N, P = x.shape
+    q = np.empty((N, 6, P))
+    q[:, 0] = candidate
+    q[:, 1] = x
+    q[:, 2] = y
+    np.multiply(x, x, out=q[:, 3])
+    np.multiply(x, y, out=q[:, 4])
+    np.multiply(y, y, out=q[:, 5])
+    for i in range(N - 2, -1, -1):
+        np.add(q[i], q[i + 1], out=q[i])
+    return q
 
 
 def fit_lambda_z(t, c, candidate, manual, *, min_points=3, tol=ADJ_R2_TOLERANCE):
@@ -89,17 +108,18 @@ def fit_lambda_z(t, c, candidate, manual, *, min_points=3, tol=ADJ_R2_TOLERANCE)
     rows = np.arange(P)
     tref = np.where(has_cand, t[rows, last], 0.0)
     with np.errstate(divide="ignore", invalid="ignore"):
-        logc = np.log(c)
-    yref = np.where(has_cand, logc[rows, last], 0.0)
+        yref = np.where(has_cand, np.log(c[rows, last]), 0.0)
 
-    x = np.where(candidate, t - tref[:, None], 0.0)
-    y = np.where(candidate, logc - yref[:, None], 0.0)
-    n = _reverse_cumsum(candidate.astype(np.float64))
-    sx = _reverse_cumsum(x)
-    sy = _reverse_cumsum(y)
-    sxx = _reverse_cumsum(x * x)
-    sxy = _reverse_cumsum(x * y)
-    syy = _reverse_cumsum(y * y)
+    # samples x profiles from here on (see _suffix_sums); the log only where needed
+    cand_t = np.ascontiguousarray(candidate.T)
+    x = np.subtract(t.T, tref, order="C")
+    x[~cand_t] = 0.0
+    y = np.zeros((N, P))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        np.log(c.T, out=y, where=cand_t)
+    np.subtract(y, yref, out=y, where=cand_t)
+    q = _suffix_sums(x, y, cand_t)
+    n, sx, sy, sxx, sxy, syy = (q[:, k] for k in range(6))
     with np.errstate(divide="ignore", invalid="ignore"):
         cxx = sxx - sx * sx / n
         cxy = sxy - sx * sy / n
@@ -110,21 +130,21 @@ def fit_lambda_z(t, c, candidate, manual, *, min_points=3, tol=ADJ_R2_TOLERANCE)
 
     declining = slope < 0
     # automatic: suffix windows starting at a candidate, >= min_points, declining
-    ok = candidate & (n >= min_points) & declining & np.isfinite(r2adj)
-    best = np.max(np.where(ok, r2adj, -np.inf), axis=1)
-    qualifies = ok & (r2adj >= best[:, None] - tol)
-    start_auto = np.argmax(qualifies, axis=1)  # earliest start = most points
-    has_auto = qualifies.any(axis=1)
+    ok = cand_t & (n >= min_points) & declining & np.isfinite(r2adj)
+    best = np.max(np.where(ok, r2adj, -np.inf), axis=0)
+    qualifies = ok & (r2adj >= best - tol)
+    start_auto = np.argmax(qualifies.T, axis=1)  # earliest start = most points
+    has_auto = qualifies.any(axis=0)
     # manual: the whole candidate set, from its first point
     start_manual = np.argmax(candidate, axis=1)
-    n_manual = n[rows, start_manual]
-    has_manual = has_cand & (n_manual >= 2) & declining[rows, start_manual]
+    n_manual = n[start_manual, rows]
+    has_manual = has_cand & (n_manual >= 2) & declining[start_manual, rows]
 
     start = np.where(manual, start_manual, start_auto)
     has = np.where(manual, has_manual, has_auto)
 
-    def pick(a):
-        return np.where(has, a[rows, start], np.nan)
+    def pick(a):  # a is samples x profiles
+        return np.where(has, a[start, rows], np.nan)
 
     b = pick(slope)
     npts = pick(n)
@@ -143,7 +163,7 @@ def fit_lambda_z(t, c, candidate, manual, *, min_points=3, tol=ADJ_R2_TOLERANCE)
         r2adj=r2adj_out,
         corr=corr,
         npoints=np.where(has, npts, 0).astype(np.int64),
-        t_first=pick(t),
+        t_first=np.where(has, t[rows, start], np.nan),
         t_last=np.where(has, tref, np.nan),
         used=used,
     )
