@@ -16,6 +16,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
+from ._dask import is_dask_frame, nca_dask
 from .blq import BLQ_MARKERS, parse_concentrations
 from .engine import SampleValueError, nca_arrays
 from .errors import InputDataError
@@ -200,7 +201,10 @@ def nca(
         One row per profile, ``by`` columns first, then PPTESTCD codes; with
         ``.rows``, ``.unused``, ``.qc_flags``, ``.settings``, ``.units`` and
         ``.to_long()``.  Results equal :func:`pkwidgets.nca_profile` on each
-        profile.
+        profile.  For a Dask DataFrame (extra ``pkwidgets[dask]``): a lazy
+        Dask DataFrame of the parameters; rows are shuffled on the profile
+        keys so each profile is whole on one partition, and every partition
+        runs this function (see :mod:`pkwidgets._dask`).
 
     Raises
     ------
@@ -208,6 +212,10 @@ def nca(
         With file (or table), line (or row) and column for unreadable values,
         missing columns, duplicate times in a profile, conflicting doses.
     """
+    if is_dask_frame(data):  # scale-out: the same function on each partition, profiles kept whole
+        options = dict(locals())
+        del options["data"], options["by"]
+        return nca_dask(data, by=by, **options)
     by = [by] if isinstance(by, str) else list(by)
     if not by:
         raise ValueError("by must name at least one column that identifies a profile (e.g. by='subject').")
