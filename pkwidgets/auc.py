@@ -88,6 +88,12 @@ def segment_areas(t1, t2, c1, c2, is_log):
     .. math:: A = \frac{c_1 - c_2}{k}, \qquad
               M = \frac{t_1 c_1 - t_2 c_2}{k} + \frac{c_1 - c_2}{k^2}
 
+    Evaluation: :math:`k\Delta t = \mathrm{log1p}((c_1 - c_2)/c_2)`, so nearly
+    equal concentrations (down to adjacent floating-point numbers) keep full
+    precision in ``A``; where :math:`k\Delta t < 10^{-5}` the two terms of
+    ``M`` cancel and the equivalent :math:`M = t_1 A + c_1 \Delta t^2 g(k\Delta t)`
+    with a series for ``g`` is used instead (see ``_g``).
+
     Examples
     --------
     >>> import numpy as np
@@ -101,11 +107,46 @@ def segment_areas(t1, t2, c1, c2, is_log):
     lin_aumc = 0.5 * dt * (t1 * c1 + t2 * c2)
     if isinstance(lin_auc, np.ndarray) and np.shape(is_log) == lin_auc.shape and not is_log.any():
         return lin_auc, lin_aumc  # no log segment (e.g. auc_method="linear"): skip the log rule
-    with np.errstate(divide="ignore", invalid="ignore"):
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        x = _log_ratio(c1, c2)  # k * dt
+        log_auc = (c1 - c2) * dt / x
         k = np.log(c1 / c2) / dt
-        log_auc = (c1 - c2) / k
-        log_aumc = (t1 * c1 - t2 * c2) / k + (c1 - c2) / (k * k)
+        textbook = (t1 * c1 - t2 * c2) / k + (c1 - c2) / (k * k)
+        # the two textbook terms cancel on nearly flat segments (relative error
+        # about 1e-16 / x**2): below x = 1e-5 use the moment form t1*A + c1*dt^2*g(x)
+        log_aumc = np.where(x < _FLAT, t1 * log_auc + c1 * dt * dt * _g(x), textbook)
     return np.where(is_log, log_auc, lin_auc), np.where(is_log, log_aumc, lin_aumc)
+
+
+#: Below this k*dt a log segment's AUMC uses the cancellation-free moment form.
+_FLAT = 1e-5
+
+
+def _log_ratio(c1, c2):
+    r""":math:`\ln(c_1/c_2)` without rounding ``c1/c2`` to 1 for nearly equal values.
+
+    ``c1 - c2`` is exact for ``c2 <= c1 <= 2 c2`` (Sterbenz), so ``log1p`` of
+    ``(c1 - c2)/c2`` keeps full relative precision where ``log(c1/c2)`` would
+    keep only about ``eps / ln(c1/c2)``.
+    """
+    return np.log1p((c1 - c2) / c2)
+
+
+def _g(x):
+    r"""Relative first moment of an exponential segment, stable for small ``x``.
+
+    .. math:: g(x) = \frac{1 - e^{-x}(1 + x)}{x^2}
+              = \frac12 - \frac{x}{3} + \frac{x^2}{8} - \frac{x^3}{30} + \frac{x^4}{144} - \dots
+
+    so that :math:`\int_0^{\Delta t} s\,c_1 e^{-ks}\,ds = c_1 \Delta t^2 g(k\Delta t)`.
+    The closed form cancels for small ``x`` (relative error about
+    ``eps / x``); below ``x = 0.01`` the series (truncated after the ``x**5`` term:
+    relative error under 4e-16) is used.
+    """
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        closed = (-np.expm1(-x) - x * np.exp(-x)) / (x * x)
+        series = 0.5 + x * (-1 / 3 + x * (1 / 8 + x * (-1 / 30 + x * (1 / 144 - x / 840))))
+    return np.where(np.abs(x) < 0.01, series, closed)
 
 
 def area_to(x, t1, c1, t2, c2, is_log):
@@ -132,9 +173,9 @@ def area_to(x, t1, c1, t2, c2, is_log):
     with np.errstate(divide="ignore", invalid="ignore"):
         c_lin = c1 + (c2 - c1) * d / dt
         a_lin = 0.5 * d * (c1 + c_lin)
-        k = np.log(c1 / c2) / dt
+        k = _log_ratio(c1, c2) / dt
         c_log = c1 * np.exp(-k * d)
-        a_log = (c1 - c_log) / k
+        a_log = c1 * -np.expm1(-k * d) / k  # = (c1 - c_log) / k, without cancellation for small k*d
     cx = np.where(is_log, c_log, c_lin)
     area = np.where(is_log, a_log, a_lin)
     at_start = d == 0
