@@ -121,6 +121,13 @@ def test_click_point_changes_readout(voila_url):
                 "() => document.querySelector('.pkw-readout').innerText.includes('left out')", timeout=20_000)
             after = _readout(page)
             page.screenshot(path=str(OUT / "picker_after_click.png"))
+            # the linear view is one toggle away; the results do not change with the view
+            page.get_by_role("button", name="linear scale").click()
+            page.wait_for_function(
+                "() => Array.from(document.querySelectorAll('.bqplot text'))"
+                ".some(e => e.textContent.trim() === 'concentration')", timeout=20_000)
+            page.screenshot(path=str(OUT / "picker_linear.png"))
+            assert _readout(page) == after
         finally:
             browser.close()
     assert after != before

@@ -72,8 +72,12 @@ class TerminalPhasePicker(widgets.VBox):
                                    display_legend=True)
         self._xaxis = bq.Axis(scale=self._xs, label="time after dose", grid_lines="none",
                               label_offset="35px")
-        self._yaxis = bq.Axis(scale=ys, side="left", label="concentration (log scale)",
-                              grid_lines="dashed", tick_format=".3g", label_offset="60px")
+        self._yaxes = {
+            log: bq.Axis(scale=self._ys[log], side="left", grid_lines="dashed", tick_format=".3g",
+                         label_offset="60px", label="concentration (log scale)" if log else "concentration")
+            for log in (True, False)
+        }
+        self._yaxis = self._yaxes[True]
         self._brush = bq.interacts.BrushIntervalSelector(scale=self._xs, color="#56B4E9")
         self._brush.observe(self._brushed, names=["brushing"])
         self.figure = bq.Figure(
@@ -206,8 +210,10 @@ class TerminalPhasePicker(widgets.VBox):
         ys = self._ys[change["new"]]
         for m in list(self._marks.values()) + [self._fit_line, self._tail_line]:
             m.scales = {"x": self._xs, "y": ys}
-        self._yaxis.scale = ys
-        self._yaxis.label = "concentration (log scale)" if change["new"] else "concentration"
+        self._yaxis = self._yaxes[change["new"]]
+        self.figure.axes = [self._xaxis, self._yaxis]
+        # the data fall from top left on a log axis, hug the bottom on a linear one
+        self.figure.legend_location = "bottom-left" if change["new"] else "top-right"
         self._recompute(None)
 
     def _to_automatic(self, _):
