@@ -191,7 +191,9 @@ def nca(
         The latest choice of each recorded profile replaces ``terminal`` and
         ``exclude`` for that profile.  A profile whose data no longer match
         the recorded fingerprint is analysed automatically and flagged
-        ``selection_stale``.  A missing file is an empty record.
+        ``selection_stale``.  A missing file is an empty record.  Recorded
+        profiles that are not in the data are not applied: a warning names
+        them (``settings["selections"]["unmatched"]``).
     sep, decimal, encoding
         CSV reading options when ``data`` is a path.
 
@@ -310,6 +312,14 @@ def nca(
         term, X, stale, applied, fps = apply_selections(rec, key_texts, T, C, B, X, term)
         sel = {"path": rec.path, "applied": [key_texts[p] for p in np.flatnonzero(applied)],
                "stale": [key_texts[p] for p in np.flatnonzero(stale)], "fingerprints": fps}
+        recorded = set(rec.states())
+        sel["unmatched"] = sorted(recorded - {tuple(k) for k in key_texts})
+        if sel["unmatched"]:
+            names = ", ".join("/".join(k) for k in sel["unmatched"][:5]) + (", ..." if len(sel["unmatched"]) > 5 else "")
+            hint = (" None of its profiles is in the data: is it the record of another dataset?"
+                    if len(sel["unmatched"]) == len(recorded) else "")
+            warnings.warn(f"selection record {rec.path or '(not saved)'} has choices for {len(sel['unmatched'])} "
+                          f"profile(s) not in {src.name} ({names}); they were not applied.{hint}", stacklevel=2)
 
     try:
         res = nca_arrays(T, C, dose=dose_p, route=route, duration=dur_p, tau=tau_p, auc_method=auc_method,

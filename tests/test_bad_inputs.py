@@ -350,4 +350,113 @@ def test_catalogue_size():
 
 
 # ---------------------------------------------------------------------------- selection records
-RECORD_CASES: list = []
+# A record of hand-made lambda-z windows (pkwidgets.record), kept beside an analysis.  The
+# fingerprint is SHA-256 (FIPS 180-4) of the profile's data: when the data change, the
+# recorded choice must not be applied silently.
+
+def _fingerprint(df, subject):
+    p = df[df["subject"] == subject].sort_values("time")
+    return pkwidgets.profile_fingerprint(p["time"].to_numpy(float), p["conc"].to_numpy(float),
+                                         np.zeros(len(p), bool))
+
+
+def _record(tmp_path, df, entries):
+    """Save a record with windows {subject: (start, end)} fingerprinted on ``df``; return its path."""
+    path = tmp_path / "selections.json"
+    rec = pkwidgets.SelectionRecord.load(path)
+    for subject, (start, end) in entries.items():
+        rec.set_window(subject, start, end, "terminal phase judged from the plot", author="analyst",
+                       fingerprint=_fingerprint(df, subject) if subject in set(df["subject"]) else
+                       _fingerprint(frame(), 1))
+    rec.save()
+    return path
+
+
+def _write(tmp_path, text):
+    path = tmp_path / "selections.json"
+    path.write_text(text, encoding="utf-8")
+    return path
+
+
+def _write_bytes(tmp_path, raw):
+    path = tmp_path / "selections.json"
+    path.write_bytes(raw)
+    return path
+
+
+VALID_HEAD = '{"schema": "pkwidgets.selection-record", "schema_version": 1, "entries": '
+
+
+@dataclass
+class RecordCase:
+    id: str
+    make: object  # tmp_path -> record path
+    data: object  # the study table analysed with the record
+    outcome: str  # "raises", "stale", "warns"
+    match: str = ""
+    stale: set = field(default_factory=set)  # subjects flagged selection_stale
+    applied: set = field(default_factory=set)  # subjects whose recorded window is applied
+
+
+def _changed():
+    df = frame()
+    df.loc[(df["subject"] == 2) & (df["time"] == 8), "conc"] = 2.6  # one value corrected after the record
+    return df
+
+
+def _other_study():
+    # another study with the same subject numbers: same design, different values
+    df = frame()
+    df["conc"] = df["conc"] * 1.07
+    return df
+
+
+RECORD_CASES = [
+    RecordCase("record-corrupt-json", lambda p: _write(p, VALID_HEAD + '[{"profile": ["1"], "choi'), frame(),
+               "raises", r"selection record .*selections\.json is not valid JSON at line 1, column \d+"),
+    RecordCase("record-not-a-record", lambda p: _write(p, '{"subject": 1, "window": [4, 24]}'), frame(),
+               "raises", r"selections\.json is not a pkwidgets selection record"),
+    RecordCase("record-newer-schema", lambda p: _write(p, VALID_HEAD.replace('"schema_version": 1',
+                                                                             '"schema_version": 99') + "[]}"),
+               frame(), "raises", r"selections\.json has schema_version 99"),
+    RecordCase("record-entry-malformed", lambda p: _write(p, VALID_HEAD + '[{"profile": 1}]}'), frame(),
+               "raises", r"selections\.json, entry 0: "),
+    RecordCase("record-not-utf8", lambda p: _write_bytes(p, b"\xff\xfe{"), frame(), "raises",
+               r"selections\.json is not valid JSON"),
+    RecordCase("record-for-data-that-changed", lambda p: _record(p, frame(), {1: (4, 24), 2: (4, 24)}), _changed(),
+               "stale", stale={2}, applied={1}),
+    RecordCase("record-of-another-study-same-subjects", lambda p: _record(p, frame(), {1: (4, 24), 2: (8, 24)}),
+               _other_study(), "stale", stale={1, 2}),
+    RecordCase("record-of-another-study-other-subjects", lambda p: _record(p, frame(), {"A-101": (4, 24)}),
+               frame(), "warns", r"selection record .*selections\.json has choices for 1 profile\(s\) not in "
+               r"table \(A-101\); they were not applied\. None of its profiles is in the data"),
+]
+
+
+@pytest.mark.parametrize("case", RECORD_CASES, ids=[c.id for c in RECORD_CASES])
+def test_selection_record_cases(case, tmp_path):
+    path = case.make(tmp_path)
+    before = path.read_bytes()
+    auto = nca(case.data, by="subject")
+    if case.outcome == "raises":
+        with pytest.raises(InputDataError, match=case.match) as info:
+            nca(case.data, by="subject", selections=path)
+        last = traceback.extract_tb(info.value.__traceback__)[-1]
+        assert os.path.dirname(os.path.abspath(last.filename)) == PKG_DIR, last
+    elif case.outcome == "warns":
+        with pytest.warns(UserWarning, match=case.match):
+            res = nca(case.data, by="subject", selections=path)
+        pd.testing.assert_frame_equal(pd.DataFrame(res), pd.DataFrame(auto))  # nothing applied
+    else:
+        res = nca(case.data, by="subject", selections=path)
+        flagged = set(res.qc_flags.loc[res.qc_flags["flag"] == "selection_stale", "subject"])
+        assert flagged == case.stale
+        manual = set(res.qc_flags.loc[res.qc_flags["flag"] == "manual_terminal", "subject"])
+        assert manual == case.applied
+        for subject in case.stale:  # stale choices fall back to the automatic search
+            row = res["subject"] == subject
+            pd.testing.assert_frame_equal(pd.DataFrame(res[row]), pd.DataFrame(auto[row]))
+        for subject in case.applied:  # a matching choice is applied: the fit starts in the window
+            lamzll = res.loc[res["subject"] == subject, "LAMZLL"].iloc[0]
+            assert 4 <= lamzll
+    assert path.read_bytes() == before  # reading a record never changes it
