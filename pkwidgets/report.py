@@ -306,8 +306,9 @@ def write_record(notebook_path, html_path=None, *, info=None, hide_code=False) -
     Raises
     ------
     FileNotFoundError
-        If ``info`` is not given and ``run_info.json`` is not beside the
-        notebook (run the notebook to its end first).
+        If ``info`` is not given and ``run_info.json`` is neither beside the
+        notebook nor in the ``output_dir`` papermill recorded (run the
+        notebook to its end first).
     """
     import nbformat
     from jinja2 import DictLoader
@@ -315,14 +316,20 @@ def write_record(notebook_path, html_path=None, *, info=None, hide_code=False) -
 
     notebook_path = os.fspath(notebook_path)
     html_path = html_path or os.path.splitext(notebook_path)[0] + ".html"
-    if info is None:
-        p = os.path.join(os.path.dirname(os.path.abspath(notebook_path)), RUN_INFO)
-        if not os.path.exists(p):
-            raise FileNotFoundError(f"{p} not found: the record header comes from it. Run {notebook_path} to its "
-                                    "end (its last cell writes it) or pass info=.")
-        with open(p, encoding="utf-8") as fh:
-            info = json.load(fh)
     nb = nbformat.read(notebook_path, as_version=4)
+    if info is None:
+        here = os.path.dirname(os.path.abspath(notebook_path))
+        candidates = [os.path.join(here, RUN_INFO)]
+        out = nb.metadata.get("papermill", {}).get("parameters", {}).get("output_dir")
+        if out:
+            candidates += [os.path.join(out, RUN_INFO), os.path.join(here, out, RUN_INFO)]
+        found = [p for p in candidates if os.path.exists(p)]
+        if not found:
+            raise FileNotFoundError(
+                f"{RUN_INFO} not found (looked in {', '.join(dict.fromkeys(candidates))}): the record header comes "
+                f"from it. Run {notebook_path} to its end (its last cell writes it into output_dir) or pass info=.")
+        with open(found[0], encoding="utf-8") as fh:
+            info = json.load(fh)
     nb.metadata.pop("widgets", None)  # a static page runs no widgets; their state would need CDN scripts
     exporter = HTMLExporter(template_name="lab", extra_loaders=[DictLoader({"pkw_record.html.j2": _TEMPLATE})],
                             template_file="pkw_record.html.j2", exclude_input=hide_code, embed_images=True)
@@ -343,7 +350,9 @@ def run_analysis(notebook, output_dir, parameters=None, *, kernel_name="python3"
         Folder for the executed notebook, the record and the notebook's CSV exports.
     parameters : dict, optional
         Values for the notebook's ``parameters`` cell; ``output_dir`` is set
-        from the argument.
+        from the argument.  Relative ``output_dir``, ``data_path`` and
+        ``selection_record`` are taken from the current folder (the kernel
+        itself runs in the notebook's folder, where the defaults point).
 
     Returns
     -------
@@ -353,9 +362,13 @@ def run_analysis(notebook, output_dir, parameters=None, *, kernel_name="python3"
     """
     import papermill as pm
 
+    output_dir = os.path.abspath(os.fspath(output_dir))
     os.makedirs(output_dir, exist_ok=True)
     params = dict(parameters or {})
-    params["output_dir"] = os.fspath(output_dir)
+    params["output_dir"] = output_dir
+    for name in ("data_path", "selection_record"):  # the kernel runs in the notebook's folder
+        if isinstance(params.get(name), (str, os.PathLike)):
+            params[name] = os.path.abspath(os.fspath(params[name]))
     stem = os.path.splitext(os.path.basename(notebook))[0]
     out_nb = os.path.join(output_dir, f"{stem}.ipynb")
     pm.execute_notebook(os.fspath(notebook), out_nb, parameters=params, kernel_name=kernel_name,
@@ -371,4 +384,6 @@ if __name__ == "__main__":  # python -m pkwidgets.report executed.ipynb [record.
 
     if len(sys.argv) not in (2, 3):
         sys.exit("usage: python -m pkwidgets.report EXECUTED.ipynb [RECORD.html]")
+    if not os.path.exists(sys.argv[1]):
+        sys.exit(f"{sys.argv[1]} not found: give the notebook papermill wrote (its output path).")
     print(write_record(sys.argv[1], sys.argv[2] if len(sys.argv) == 3 else None))
