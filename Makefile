@@ -36,6 +36,7 @@ test: $(VENV)/.stamp-test browser-deps
 
 bench: $(VENV)/.stamp-test
 	$(PY) bench/nca_speed.py
+	$(PY) bench/widget_speed.py
 
 clean:
 	rm -rf results tests/_output .pytest_cache

@@ -144,6 +144,7 @@ def nca(
     partial=(),
     qc=None,
     selections=None,
+    occasion=None,
     sep=",",
     decimal=".",
     encoding="utf-8",
@@ -194,6 +195,11 @@ def nca(
         ``selection_stale``.  A missing file is an empty record.  Recorded
         profiles that are not in the data are not applied: a warning names
         them (``settings["selections"]["unmatched"]``).
+    occasion : str, optional
+        A ``by`` column that orders dosing occasions (day, dose number) of
+        otherwise identical keys.  With ``tau``, each later occasion gets the
+        observed accumulation ratios against the first occasion with the same
+        tau: ARAUC = AUCTAU / AUCTAU(first), ARCMAX = CMAX / CMAX(first).
     sep, decimal, encoding
         CSV reading options when ``data`` is a path.
 
@@ -330,6 +336,8 @@ def nca(
             f"{src.at(i, conc)}, profile {keys.iloc[exc.profile].to_dict()}: "
             + exc.template.format(where="this BLQ sample"),
             file=src.file, line=src.line(i), column=conc, profile=keys.iloc[exc.profile].to_dict()) from None
+    if occasion is not None:
+        res.update(_accumulation(res, keys, by, occasion, tau_p))
     # rows out of time order in the input, per profile
     unsorted = np.zeros(P, dtype=bool)
     pi = prof[idx]
@@ -374,7 +382,9 @@ def nca(
         source=src.name, by=by, columns={"time": time, "conc": conc, "dose": dose, "blq": blq, "lloq": lloq,
                                          "dose_time": dose_time},
         units=None if su is None else {"time": su.time, "conc": su.conc, "dose": su.dose},
-        tau=tau, duration=duration,
+        tau=tau, duration=duration, occasion=occasion,
+        steady_state_predose=("observed sample at dose time used as C(0); without one, CMIN of the "
+                              "interval (flag predose_imputed)") if tau is not None else None,
         blq_rules_text="; ".join(f"{k}={v}" for k, v in rules.items()),
         profiles=P, rows=n, rows_used=int(rows["used"].sum()), selections=sel,
     )
@@ -383,6 +393,30 @@ def nca(
               "duration": dur_p, "tau": tau_p, "keys": key_texts, "lambda_z_used": res.lambda_z_used}
     out._record = NCARecord(rows=rows, qc_flags=qc_flags, settings=settings, units=unit_map, by=by, inputs=inputs)
     return out
+
+
+def _accumulation(res, keys, by, occasion, tau_p):
+    """ARAUC and ARCMAX of each profile against the first occasion of the same other keys and tau."""
+    if occasion not in by:
+        raise ValueError(f"occasion={occasion!r} must be one of the by columns {by}.")
+    if tau_p is None:
+        raise ValueError("occasion= gives accumulation ratios over a dosing interval: pass tau= as well.")
+    P = len(keys)
+    tau_p = np.broadcast_to(np.asarray(tau_p, dtype=np.float64), (P,))
+    others = [b for b in by if b != occasion]
+    frame = keys.copy()
+    frame["__tau__"] = tau_p
+    frame["__pos__"] = np.arange(P)
+    group = frame.groupby(others + ["__tau__"], sort=False, dropna=False) if others else frame.groupby("__tau__")
+    first_pos = frame.loc[group[occasion].idxmin(), "__pos__"].to_numpy()
+    ref = np.full(P, -1)
+    ref[frame["__pos__"].to_numpy()] = first_pos[group.ngroup().to_numpy()]
+    later = ref != np.arange(P)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return {
+            "ARAUC": np.where(later, res["AUCTAU"] / res["AUCTAU"][ref], np.nan),
+            "ARCMAX": np.where(later, res["CMAX"] / res["CMAX"][ref], np.nan),
+        }
 
 
 def _key_of(row_values, by):
