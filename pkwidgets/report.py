@@ -33,6 +33,7 @@ __all__ = [
     "plot_mean_profiles",
     "write_record",
     "run_analysis",
+    "refresh_stored_outputs",
 ]
 
 #: Fixed margins (constrained layout costs more than the drawing itself on a long record).
@@ -379,11 +380,46 @@ def run_analysis(notebook, output_dir, parameters=None, *, kernel_name="python3"
     return {"notebook": out_nb, "html": html_path, "csv": csvs}
 
 
+def refresh_stored_outputs(notebook, *, timeout=600) -> str:
+    """Re-execute an analysis notebook in place on its default (demo) parameters, for nbval.
+
+    The stored outputs are what ``pytest --nbval`` compares; refresh them
+    after an intended change of results.  Images are dropped from the stored
+    copy (nbval does not compare them, and they would bloat the repository);
+    their ``text/plain`` stand-ins are kept.
+
+    Returns
+    -------
+    str
+        The notebook path.
+    """
+    import nbformat
+    from nbclient import NotebookClient
+
+    notebook = os.fspath(notebook)
+    nb = nbformat.read(notebook, as_version=4)
+    NotebookClient(nb, timeout=timeout, kernel_name="python3",
+                   resources={"metadata": {"path": os.path.dirname(os.path.abspath(notebook))}}).execute()
+    for cell in nb.cells:
+        cell.metadata.pop("execution", None)  # run timings: noise in the repository's history
+        for out in cell.get("outputs", []):
+            for key in ("image/png", "image/svg+xml"):
+                out.get("data", {}).pop(key, None)
+    nb.metadata.pop("widgets", None)
+    nbformat.write(nb, notebook)
+    return notebook
+
+
 if __name__ == "__main__":  # python -m pkwidgets.report executed.ipynb [record.html]
     import sys
 
+    if len(sys.argv) >= 3 and sys.argv[1] == "--refresh":  # python -m pkwidgets.report --refresh analyses/*.ipynb
+        for path in sys.argv[2:]:
+            print(refresh_stored_outputs(path))
+        sys.exit(0)
     if len(sys.argv) not in (2, 3):
-        sys.exit("usage: python -m pkwidgets.report EXECUTED.ipynb [RECORD.html]")
+        sys.exit("usage: python -m pkwidgets.report EXECUTED.ipynb [RECORD.html]\n"
+                 "       python -m pkwidgets.report --refresh analyses/NAME.ipynb ...")
     if not os.path.exists(sys.argv[1]):
         sys.exit(f"{sys.argv[1]} not found: give the notebook papermill wrote (its output path).")
     print(write_record(sys.argv[1], sys.argv[2] if len(sys.argv) == 3 else None))
