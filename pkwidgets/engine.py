@@ -31,7 +31,7 @@ import numpy as np
 
 from .auc import area_to, check_method, segment_areas, segment_is_log
 from .blq import BLQRules
-from .lambda_z import fit_lambda_z
+from .lambda_z import fit_lambda_z_samples_major
 from .parameters import partial_code
 from .qc import FLAGS, QCThresholds, SampleStatus
 
@@ -39,10 +39,10 @@ __all__ = ["nca_arrays", "ArrayResult", "ROUTES"]
 
 ROUTES = ("extravascular", "iv-bolus", "iv-infusion")
 _LN2 = np.log(2.0)
-#: Profiles per chunk: keeps temporaries in cache and memory bounded (8192
-#: profiles x 17 float64 ~ 1 MB per temporary; larger chunks were 2-4 x slower
+#: Profiles per chunk: keeps temporaries in cache and memory bounded (4096
+#: profiles x 17 float64 ~ 0.5 MB per temporary; 32768 was 2-4 x slower
 #: on the benchmark, see ``bench/nca_speed.py``).
-CHUNK = 8192
+CHUNK = 4096
 #: Threads over chunks (NumPy releases the GIL inside its loops); None = all cores.
 THREADS = None
 
@@ -386,13 +386,14 @@ class SampleValueError(ValueError):
 
 
 def _rule_value(rule, lloq, where_mask, position):
+    """Substitute for BLQ samples at ``where_mask``; arrays are samples x profiles."""
     if rule == "zero":
-        return np.zeros_like(lloq)
+        return 0.0
     if rule == "missing":
-        return np.full_like(lloq, np.nan)
+        return np.nan
     need = where_mask & np.isnan(lloq)
     if need.any():
-        p, s = np.argwhere(need)[0]
+        p, s = np.argwhere(need.T)[0]
         raise SampleValueError(
             f"BLQ rule {position}={rule!r} needs the LLOQ, but {{where}} has none; "
             "pass lloq= (a number, or one per profile or sample).", int(p), int(s)
@@ -400,15 +401,22 @@ def _rule_value(rule, lloq, where_mask, position):
     return lloq * (0.5 if rule == "half-lloq" else 1.0)
 
 
-def _take(a, idx):
-    return np.take_along_axis(a, idx[:, None], axis=1)[:, 0]
+def _pick(a, idx):
+    """``a[idx[p], p]`` for every profile p of a samples x profiles array."""
+    return a[idx, np.arange(a.shape[1])]
 
 
 def _chunk(t, c, blq, lloq, excl, dose, dur, tau, lo, hi, parts, o):  # noqa: C901 - one pass, in steps
+    # Work samples-major (samples x profiles): a per-profile value then broadcasts
+    # along the long contiguous axis and reductions over samples run over
+    # contiguous rows, where profiles-major arrays of 10-20 samples per row make
+    # NumPy loop row by row.  Inputs and the per-sample outputs are transposed
+    # once, on the way in and out.
     P, N = t.shape
-    rows = np.arange(P)
+    t, c, blq, excl = (np.ascontiguousarray(a.T) for a in (t, c, blq, excl))
+    lloq = lloq.T
     S = SampleStatus
-    status = np.zeros((P, N), dtype=np.int8)
+    status = np.zeros((N, P), dtype=np.int8)
     flags = {name: np.zeros(P, dtype=bool) for name in FLAGS}
     is_ss = ~np.isnan(tau)
     bolus = o.route == "iv-bolus"
@@ -424,8 +432,8 @@ def _chunk(t, c, blq, lloq, excl, dose, dur, tau, lo, hi, parts, o):  # noqa: C9
     isblq = usable_t & blq
     with np.errstate(invalid="ignore"):
         meas = usable_t & ~blq & (c > 0)
-    t_first = np.min(np.where(meas, t, np.inf), axis=1)[:, None]
-    t_last = np.max(np.where(meas, t, -np.inf), axis=1)[:, None]
+    t_first = np.min(np.where(meas, t, np.inf), axis=0)
+    t_last = np.max(np.where(meas, t, -np.inf), axis=0)
     value = np.where(blq, np.nan, c)
     for position, mask, code in (
         ("before", isblq & (t < t_first), S.BLQ_MISSING_BEFORE),
@@ -440,36 +448,36 @@ def _chunk(t, c, blq, lloq, excl, dose, dur, tau, lo, hi, parts, o):  # noqa: C9
 
     # 2. dose-time point ------------------------------------------------------
     at0 = usable & (t == 0)
-    ctrough = np.where(at0.any(axis=1), np.max(np.where(at0, value, -np.inf), axis=1), np.nan)
+    ctrough = np.where(at0.any(axis=0), np.max(np.where(at0, value, -np.inf), axis=0), np.nan)
     with np.errstate(invalid="ignore"):
-        in_tau = usable & (t <= tau[:, None])
-    cmin_tau = np.min(np.where(in_tau, value, np.inf), axis=1)
+        in_tau = usable & (t <= tau)
+    cmin_tau = np.min(np.where(in_tau, value, np.inf), axis=0)
     cmin_tau = np.where(np.isfinite(cmin_tau), cmin_tau, np.nan)
     if bolus:
         status[at0] = S.BOLUS_PREDOSE
         usable &= ~at0
-        c0, declining = _bolus_c0(t, value, usable)
+        c0, declining = _bolus_c0(t.T, value.T, usable.T)
         need0 = np.ones(P, dtype=bool)
         flags["c0_extrapolated"] = declining
         flags["c0_first_observed"] = ~declining & ~np.isnan(c0)
     else:
-        need0 = ~at0.any(axis=1)
+        need0 = ~at0.any(axis=0)
         c0 = np.where(is_ss, cmin_tau, 0.0)
         flags["time0_added"] = need0 & ~is_ss
         flags["predose_imputed"] = need0 & is_ss
 
     # 3. sort, compact --------------------------------------------------------
-    T = np.concatenate([np.zeros((P, 1)), t], axis=1)
-    V = np.concatenate([c0[:, None], value], axis=1)
-    U = np.concatenate([need0[:, None] & ~np.isnan(c0)[:, None], usable], axis=1)
-    X = np.concatenate([np.zeros((P, 1), dtype=bool), excl], axis=1)
+    T = np.concatenate([np.zeros((1, P)), t], axis=0)
+    V = np.concatenate([c0[None, :], value], axis=0)
+    U = np.concatenate([(need0 & ~np.isnan(c0))[None, :], usable], axis=0)
+    X = np.concatenate([np.zeros((1, P), dtype=bool), excl], axis=0)
     order = _sort_order(T, U)
     with np.errstate(invalid="ignore"):  # inf - inf between padding cells: NaN, not "out of order"
-        flags["times_sorted"] = (np.diff(np.where(usable, t, np.nan), axis=1) < 0).any(axis=1) | (
-            np.diff(np.where(present, t, np.inf), axis=1) < 0
-        ).any(axis=1)
+        flags["times_sorted"] = (np.diff(np.where(usable, t, np.nan), axis=0) < 0).any(axis=0) | (
+            np.diff(np.where(present, t, np.inf), axis=0) < 0
+        ).any(axis=0)
     M = N + 1
-    flat = order + (np.arange(P) * M)[:, None]  # positions in the flattened (P, M) arrays
+    flat = order * P + np.arange(P)  # positions in the flattened (M, P) arrays
     Ts = T.reshape(-1).take(flat)
     Vs = V.reshape(-1).take(flat)
     Us = U.reshape(-1).take(flat)
@@ -477,48 +485,47 @@ def _chunk(t, c, blq, lloq, excl, dose, dur, tau, lo, hi, parts, o):  # noqa: C9
     added = order == 0
     Ts = np.where(Us, Ts, np.nan)
     Vs = np.where(Us, Vs, np.nan)
-    nvalid = Us.sum(axis=1)
-    cols = np.arange(M)
+    nvalid = Us.sum(axis=0)
+    cols = np.arange(M)[:, None]
 
     # 4. peak, last, lag ------------------------------------------------------
     obs = Us & ~added
     with np.errstate(invalid="ignore"):
-        peak_pool = obs & np.where(is_ss[:, None], Ts <= tau[:, None], True)
+        peak_pool = obs & np.where(is_ss, Ts <= tau, True)
         positive = obs & (Vs > 0)
-    i_max = np.argmax(np.where(peak_pool, Vs, -np.inf), axis=1)
+    i_max = np.argmax(np.where(peak_pool, Vs, -np.inf), axis=0)
     # a profile needs one measured (not substituted) positive concentration
-    has_pos = positive.any(axis=1) & meas.any(axis=1)
-    CMAX = np.where(has_pos, _take(Vs, i_max), np.nan)
-    TMAX = np.where(has_pos, _take(Ts, i_max), np.nan)
-    i_last = M - 1 - np.argmax(positive[:, ::-1], axis=1)
-    CLST = np.where(has_pos, _take(Vs, i_last), np.nan)
-    TLST = np.where(has_pos, _take(Ts, i_last), np.nan)
-    i_first = np.argmax(positive, axis=1)
-    TLAG = np.where(i_first > 0, _take(Ts, np.maximum(i_first - 1, 0)), 0.0)
+    has_pos = positive.any(axis=0) & meas.any(axis=0)
+    CMAX = np.where(has_pos, _pick(Vs, i_max), np.nan)
+    TMAX = np.where(has_pos, _pick(Ts, i_max), np.nan)
+    i_last = M - 1 - np.argmax(positive[::-1], axis=0)
+    CLST = np.where(has_pos, _pick(Vs, i_last), np.nan)
+    TLST = np.where(has_pos, _pick(Ts, i_last), np.nan)
+    i_first = np.argmax(positive, axis=0)
+    TLAG = np.where(i_first > 0, _pick(Ts, np.maximum(i_first - 1, 0)), 0.0)
     TLAG = np.where(has_pos & (o.route == "extravascular"), TLAG, np.nan)
 
     # segments and running areas
-    t1, t2, c1, c2 = Ts[:, :-1], Ts[:, 1:], Vs[:, :-1], Vs[:, 1:]
-    seg_ok = Us[:, 1:]
+    t1, t2, c1, c2 = Ts[:-1], Ts[1:], Vs[:-1], Vs[1:]
+    seg_ok = Us[1:]
     t_switch = np.zeros(P) if bolus else TMAX
-    is_log = segment_is_log(t1, c1, c2, o.method, t_switch[:, None]) & seg_ok
+    is_log = segment_is_log(t1, c1, c2, o.method, t_switch) & seg_ok
     a_seg, m_seg = segment_areas(t1, t2, c1, c2, is_log)
-    zeros = np.zeros((P, 1))
-    A = np.concatenate([zeros, np.cumsum(np.where(seg_ok, a_seg, 0.0), axis=1)], axis=1)
-    Mm = np.concatenate([zeros, np.cumsum(np.where(seg_ok, m_seg, 0.0), axis=1)], axis=1)
-    AUCLST = np.where(has_pos, _take(A, i_last), np.nan)
-    AUMCLST = np.where(has_pos, _take(Mm, i_last), np.nan)
-    AUCALL = np.where(has_pos, _take(A, np.maximum(nvalid - 1, 0)), np.nan)
+    A = _running_sum(np.where(seg_ok, a_seg, 0.0))
+    Mm = _running_sum(np.where(seg_ok, m_seg, 0.0))
+    AUCLST = np.where(has_pos, _pick(A, i_last), np.nan)
+    AUMCLST = np.where(has_pos, _pick(Mm, i_last), np.nan)
+    AUCALL = np.where(has_pos, _pick(A, np.maximum(nvalid - 1, 0)), np.nan)
 
     # 5. lambda z -------------------------------------------------------------
     manual = ~np.isnan(lo)
-    after_peak = cols[None, :] >= i_max[:, None] + (0 if bolus else 1)
-    cand_auto = positive & ~Xs & after_peak & (cols[None, :] <= i_last[:, None])
+    after_peak = cols >= i_max + (0 if bolus else 1)
+    cand_auto = positive & ~Xs & after_peak & (cols <= i_last)
     with np.errstate(invalid="ignore"):
-        eps = 1e-9 * np.maximum(1.0, np.abs(hi))[:, None]
-        cand_man = positive & ~Xs & (Ts >= lo[:, None] - eps) & (Ts <= hi[:, None] + eps)
-    cand = np.where(manual[:, None], cand_man, cand_auto)
-    fit = fit_lambda_z(Ts, Vs, cand, manual)
+        eps = 1e-9 * np.maximum(1.0, np.abs(hi))
+        cand_man = positive & ~Xs & (Ts >= lo - eps) & (Ts <= hi + eps)
+    cand = np.where(manual, cand_man, cand_auto)
+    fit = fit_lambda_z_samples_major(Ts, Vs, cand, manual)
     LAMZ = np.where(has_pos, fit.lamz, np.nan)
     with np.errstate(divide="ignore", invalid="ignore"):
         LAMZHL = _LN2 / LAMZ
@@ -555,7 +562,7 @@ def _chunk(t, c, blq, lloq, excl, dose, dur, tau, lo, hi, parts, o):  # noqa: C9
                      VZO=dose / (LAMZ * AUCIFO), VZP=dose / (LAMZ * AUCIFP), VSSO=mrt_ifo_iv * clo)
             if bolus:
                 p["C0"] = np.where(has_pos, c0, np.nan)
-                p["AUCPBEO"] = 100.0 * A[:, 1] / AUCIFO
+                p["AUCPBEO"] = 100.0 * A[1] / AUCIFO
         p.update(CMAXD=CMAX / dose, AUCLSTD=AUCLST / dose, AUCIFOD=AUCIFO / dose)
 
     cum = _Cumulative(Ts, Vs, Us, A, is_log, TLST, CLST, AUCLST, LAMZ)
@@ -594,45 +601,65 @@ def _chunk(t, c, blq, lloq, excl, dose, dur, tau, lo, hi, parts, o):  # noqa: C9
         predose = np.where(bolus | is_ss, np.nan, ctrough)
         flags["predose_high"] = predose > qc.max_predose_pct / 100.0 * CMAX
     flags["manual_terminal"] = manual
-    flags["points_excluded"] = (excl & usable).any(axis=1)
+    flags["points_excluded"] = (excl & usable).any(axis=0)
     for k in p:
         p[k] = np.where(has_pos, p[k], np.nan)
 
     # status and fit mask back in input order
     with np.errstate(invalid="ignore"):
-        after_last = Us & (Ts > TLST[:, None]) & ~added
-    back = np.empty(P * M, dtype=np.intp)  # flattened sorted position of each input column
-    back[flat.reshape(-1)] = np.arange(P * M)
-    back = back.reshape(P, M)[:, 1:]
+        after_last = Us & (Ts > TLST) & ~added
+    back = np.empty(M * P, dtype=np.intp)  # flattened sorted position of each input sample
+    back[flat.reshape(-1)] = np.arange(M * P)
+    back = back.reshape(M, P)[1:]
     used_in = np.ascontiguousarray(fit.used).reshape(-1).take(back)
     late = after_last.reshape(-1).take(back)
     status[late & (status == S.USED)] = S.AFTER_TLAST
-    status[~has_pos[:, None] & (status == S.USED) & present] = S.NO_MEASURABLE
-    return p, flags, status, used_in
+    status[~has_pos & (status == S.USED) & present] = S.NO_MEASURABLE
+    return p, flags, np.ascontiguousarray(status.T), np.ascontiguousarray(used_in.T)
 
 
 def _sort_order(T, U):
-    """Per row, the stable argsort of T with the unusable cells (U False) moved to the end.
+    """Per profile (column), the stable argsort of T with the unusable cells (U False) moved to the end.
 
-    Rows whose usable times already increase (the usual case) are ordered by
-    a stable partition, O(samples); only the other rows are sorted.  Both
-    give exactly what ``np.argsort(np.where(U, T, inf), axis=1, kind="stable")``
+    Profiles whose usable times already increase (the usual case) are ordered
+    by a stable partition, O(samples); only the others are sorted.  Both give
+    exactly what ``np.argsort(np.where(U, T, inf), axis=0, kind="stable")``
     gives.
     """
-    P, M = T.shape
-    cols = np.arange(M)
-    nu = np.cumsum(U, axis=1)
-    dest = np.where(U, nu - 1, nu[:, -1:] + cols - nu)  # usable first, each group in input order
-    base = (np.arange(P) * M)[:, None]
-    order = np.empty((P, M), dtype=np.intp)
-    order.reshape(-1)[(dest + base).reshape(-1)] = np.tile(cols, P)
-    ts = np.ascontiguousarray(T).reshape(-1).take(order + base)
-    both_usable = cols[1:] < nu[:, -1:]
-    out_of_order = np.flatnonzero(((ts[:, 1:] <= ts[:, :-1]) & both_usable).any(axis=1))
+    M, P = T.shape
+    rows = np.arange(M)[:, None]
+    nu = _running_count(U)  # usable samples up to and including each row
+    dest = np.where(U, nu - 1, nu[-1] + rows - nu)  # usable first, each group in input order
+    profiles = np.arange(P)
+    order = np.empty((M, P), dtype=np.intp)
+    order.reshape(-1)[(dest * P + profiles).reshape(-1)] = np.repeat(np.arange(M), P)
+    ts = T.reshape(-1).take(order * P + profiles)
+    both_usable = rows[1:] < nu[-1]
+    out_of_order = np.flatnonzero(((ts[1:] <= ts[:-1]) & both_usable).any(axis=0))
     if out_of_order.size:
-        key = np.where(U[out_of_order], T[out_of_order], np.inf)
-        order[out_of_order] = np.argsort(key, axis=1, kind="stable")
+        key = np.where(U[:, out_of_order], T[:, out_of_order], np.inf)
+        order[:, out_of_order] = np.argsort(key, axis=0, kind="stable")
     return order
+
+
+def _running_count(mask):
+    """Number of True values down axis 0 up to each row (as ``np.cumsum(mask, axis=0)``)."""
+    out = np.empty(mask.shape, dtype=np.intp)
+    out[0] = mask[0]
+    for i in range(1, mask.shape[0]):
+        np.add(out[i - 1], mask[i], out=out[i])
+    return out
+
+
+def _running_sum(s):
+    """``[0, s0, s0 + s1, ...]`` down axis 0: the additions of ``np.cumsum``, one row at a time."""
+    out = np.empty((s.shape[0] + 1,) + s.shape[1:])
+    out[0] = 0.0
+    if s.shape[0]:
+        out[1] = s[0]
+    for i in range(1, s.shape[0]):
+        np.add(out[i], s[i], out=out[i + 1])
+    return out
 
 
 def _bolus_c0(t, value, usable):
@@ -656,19 +683,19 @@ class _Cumulative:
 
     def __init__(self, Ts, Vs, Us, A, is_log, TLST, CLST, AUCLST, LAMZ):
         self.Ts, self.Vs, self.Us, self.A = Ts, Vs, Us, A
-        self.is_log = np.concatenate([is_log, np.zeros((Ts.shape[0], 1), dtype=bool)], axis=1)
+        self.is_log = np.concatenate([is_log, np.zeros((1, Ts.shape[1]), dtype=bool)], axis=0)
         self.TLST, self.CLST, self.AUCLST, self.LAMZ = TLST, CLST, AUCLST, LAMZ
 
     def at(self, x):
         """Return (area, extrapolated) for x of shape (profiles,); NaN x gives NaN."""
         Ts, Vs = self.Ts, self.Vs
-        M = Ts.shape[1]
+        M = Ts.shape[0]
         with np.errstate(invalid="ignore"):
-            k = np.maximum((self.Us & (Ts <= x[:, None])).sum(axis=1) - 1, 0)
+            k = np.maximum((self.Us & (Ts <= x)).sum(axis=0) - 1, 0)
             k1 = np.minimum(k + 1, M - 1)
-            seg_area, _ = area_to(x, _take(Ts, k), _take(Vs, k), _take(Ts, k1), _take(Vs, k1),
-                                  _take(self.is_log, k))
-            inside = _take(self.A, k) + seg_area
+            seg_area, _ = area_to(x, _pick(Ts, k), _pick(Vs, k), _pick(Ts, k1), _pick(Vs, k1),
+                                  _pick(self.is_log, k))
+            inside = _pick(self.A, k) + seg_area
             extrap = x > self.TLST
             with np.errstate(over="ignore"):
                 tail = self.AUCLST + self.CLST / self.LAMZ * -np.expm1(-self.LAMZ * (x - self.TLST))

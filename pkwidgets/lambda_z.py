@@ -32,7 +32,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["LambdaZFit", "fit_lambda_z"]
+__all__ = ["LambdaZFit", "fit_lambda_z", "fit_lambda_z_samples_major"]
 
 #: Adjusted R² values within this of the best are tied (common practice, no source).
 ADJ_R2_TOLERANCE = 1e-4
@@ -101,23 +101,34 @@ def fit_lambda_z(t, c, candidate, manual, *, min_points=3, tol=ADJ_R2_TOLERANCE)
         NaN (and 0 points) for a profile with no qualifying fit, e.g. fewer
         than ``min_points`` candidates or no declining window.
     """
-    P, N = t.shape
-    cols = np.arange(N)
-    has_cand = candidate.any(axis=1)
-    last = N - 1 - np.argmax(candidate[:, ::-1], axis=1)
-    rows = np.arange(P)
-    tref = np.where(has_cand, t[rows, last], 0.0)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        yref = np.where(has_cand, np.log(c[rows, last]), 0.0)
+    fit = fit_lambda_z_samples_major(
+        np.ascontiguousarray(t.T), np.ascontiguousarray(c.T), np.ascontiguousarray(candidate.T), manual,
+        min_points=min_points, tol=tol)
+    fit.used = np.ascontiguousarray(fit.used.T)
+    return fit
 
-    # samples x profiles from here on (see _suffix_sums); the log only where needed
-    cand_t = np.ascontiguousarray(candidate.T)
-    x = np.subtract(t.T, tref, order="C")
-    x[~cand_t] = 0.0
-    y = np.zeros((N, P))
+
+def fit_lambda_z_samples_major(t, c, candidate, manual, *, min_points=3, tol=ADJ_R2_TOLERANCE):
+    """:func:`fit_lambda_z` on samples x profiles arrays (``used`` comes back samples x profiles).
+
+    The array engine works in this layout: per-profile values broadcast along
+    the long axis and the running sums advance one contiguous row at a time.
+    """
+    N, P = t.shape
+    rows = np.arange(P)
+    has_cand = candidate.any(axis=0)
+    last = N - 1 - np.argmax(candidate[::-1], axis=0)
+    tref = np.where(has_cand, t[last, rows], 0.0)
     with np.errstate(divide="ignore", invalid="ignore"):
-        np.log(c.T, out=y, where=cand_t)
-    np.subtract(y, yref, out=y, where=cand_t)
+        yref = np.where(has_cand, np.log(c[last, rows]), 0.0)
+
+    cand_t = candidate
+    x = np.where(cand_t, t, tref)  # tref - tref = 0 off the candidates
+    x -= tref
+    y = np.where(cand_t, c, 1.0)  # log 1 = 0 off the candidates (and no log of NaN)
+    np.log(y, out=y)
+    y -= yref
+    y *= cand_t  # y is finite everywhere: exact 0 off the candidates
     q = _suffix_sums(x, y, cand_t)
     n, sx, sy, sxx, sxy, syy = (q[:, k] for k in range(6))
     with np.errstate(divide="ignore", invalid="ignore"):
@@ -133,10 +144,10 @@ def fit_lambda_z(t, c, candidate, manual, *, min_points=3, tol=ADJ_R2_TOLERANCE)
     ok = cand_t & (n >= min_points) & declining & np.isfinite(r2adj)
     best = np.max(np.where(ok, r2adj, -np.inf), axis=0)
     qualifies = ok & (r2adj >= best - tol)
-    start_auto = np.argmax(qualifies.T, axis=1)  # earliest start = most points
+    start_auto = np.argmax(qualifies, axis=0)  # earliest start = most points
     has_auto = qualifies.any(axis=0)
     # manual: the whole candidate set, from its first point
-    start_manual = np.argmax(candidate, axis=1)
+    start_manual = np.argmax(candidate, axis=0)
     n_manual = n[start_manual, rows]
     has_manual = has_cand & (n_manual >= 2) & declining[start_manual, rows]
 
@@ -155,7 +166,7 @@ def fit_lambda_z(t, c, candidate, manual, *, min_points=3, tol=ADJ_R2_TOLERANCE)
         corr = np.where(has, np.sign(b) * np.sqrt(pick(r2)), np.nan)
     r2adj_out = pick(r2adj)
     r2adj_out = np.where(npts >= 3, r2adj_out, np.nan)
-    used = candidate & (cols[None, :] >= start[:, None]) & has[:, None]
+    used = candidate & (np.arange(N)[:, None] >= start) & has
     return LambdaZFit(
         lamz=-b,
         intercept=np.where(has, intercept, np.nan),
@@ -163,7 +174,7 @@ def fit_lambda_z(t, c, candidate, manual, *, min_points=3, tol=ADJ_R2_TOLERANCE)
         r2adj=r2adj_out,
         corr=corr,
         npoints=np.where(has, npts, 0).astype(np.int64),
-        t_first=np.where(has, t[rows, start], np.nan),
+        t_first=np.where(has, t[start, rows], np.nan),
         t_last=np.where(has, tref, np.nan),
         used=used,
     )
