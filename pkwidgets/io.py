@@ -111,6 +111,9 @@ def write_atomic(path, text: str, *, encoding="utf-8") -> None:
     folder = os.path.dirname(os.path.abspath(path))
     fd, tmp = tempfile.mkstemp(prefix=".tmp-", suffix=os.path.basename(path), dir=folder)
     try:
+        # mkstemp creates mode 0600: give the file the mode a plain open() would
+        # (the existing file's mode, else 0666 less the umask)
+        os.chmod(tmp, _target_mode(path))
         with os.fdopen(fd, "w", encoding=encoding, newline="") as fh:
             fh.write(text)
             fh.flush()
@@ -120,6 +123,15 @@ def write_atomic(path, text: str, *, encoding="utf-8") -> None:
         if os.path.exists(tmp):
             os.unlink(tmp)
         raise
+
+
+def _target_mode(path) -> int:
+    try:
+        return os.stat(path).st_mode & 0o777
+    except FileNotFoundError:
+        umask = os.umask(0)
+        os.umask(umask)
+        return 0o666 & ~umask
 
 
 def write_csv_atomic(frame: pd.DataFrame, path) -> None:
