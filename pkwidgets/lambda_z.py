@@ -53,9 +53,10 @@ class LambdaZFit:
     used: np.ndarray  # bool, same shape as the time array
 
 
-def _suffix_sums(x, y, candidate):
+def _suffix_sums(t, c, candidate, tref, yref):
     """Running sums from the end of n, x, y, x², xy, y², samples-major.
 
+    ``x = t - tref`` and ``y = ln c - yref`` on the candidates, 0 elsewhere.
     Returns an array of shape (samples, 6, profiles): entry ``[i, k, p]`` is
     the k-th sum over the candidate points of profile ``p`` at or after
     sample ``i``.  Samples-major layout makes each step of the running sum
@@ -63,11 +64,14 @@ def _suffix_sums(x, y, candidate):
     along short rows is several times slower); the additions happen in the
     same order as ``cumsum`` from the end, so the sums are the same numbers.
     """
-    N, P = x.shape
+    N, P = t.shape
     q = np.empty((N, 6, P))
     q[:, 0] = candidate
-    q[:, 1] = x
-    q[:, 2] = y
+    x, y = q[:, 1], q[:, 2]
+    np.subtract(np.where(candidate, t, tref), tref, out=x)  # tref - tref = 0 off the candidates
+    np.log(np.where(candidate, c, 1.0), out=y)  # log 1 = 0 off the candidates (and no log of NaN)
+    y -= yref
+    y *= candidate  # y is finite everywhere: exact 0 off the candidates
     np.multiply(x, x, out=q[:, 3])
     np.multiply(x, y, out=q[:, 4])
     np.multiply(y, y, out=q[:, 5])
@@ -122,14 +126,11 @@ def fit_lambda_z_samples_major(t, c, candidate, manual, *, min_points=3, tol=ADJ
     with np.errstate(divide="ignore", invalid="ignore"):
         yref = np.where(has_cand, np.log(c[last, rows]), 0.0)
 
-    cand_t = candidate
-    x = np.where(cand_t, t, tref)  # tref - tref = 0 off the candidates
-    x -= tref
-    y = np.where(cand_t, c, 1.0)  # log 1 = 0 off the candidates (and no log of NaN)
-    np.log(y, out=y)
-    y -= yref
-    y *= cand_t  # y is finite everywhere: exact 0 off the candidates
-    q = _suffix_sums(x, y, cand_t)
+    # a sample no profile has as a candidate starts no window: rows lo:hi suffice
+    any_row = candidate.any(axis=1)
+    lo, hi = int(np.argmax(any_row)), N - int(np.argmax(any_row[::-1]))
+    cand_t = candidate[lo:hi]
+    q = _suffix_sums(t[lo:hi], c[lo:hi], cand_t, tref, yref)
     n, sx, sy, sxx, sxy, syy = (q[:, k] for k in range(6))
     with np.errstate(divide="ignore", invalid="ignore"):
         cxx = sxx - sx * sx / n
@@ -144,17 +145,17 @@ def fit_lambda_z_samples_major(t, c, candidate, manual, *, min_points=3, tol=ADJ
     ok = cand_t & (n >= min_points) & declining & np.isfinite(r2adj)
     best = np.max(np.where(ok, r2adj, -np.inf), axis=0)
     qualifies = ok & (r2adj >= best - tol)
-    start_auto = np.argmax(qualifies, axis=0)  # earliest start = most points
+    start_auto = np.argmax(qualifies, axis=0)  # earliest start = most points (row in lo:hi)
     has_auto = qualifies.any(axis=0)
     # manual: the whole candidate set, from its first point
-    start_manual = np.argmax(candidate, axis=0)
+    start_manual = np.argmax(cand_t, axis=0)
     n_manual = n[start_manual, rows]
     has_manual = has_cand & (n_manual >= 2) & declining[start_manual, rows]
 
     start = np.where(manual, start_manual, start_auto)
     has = np.where(manual, has_manual, has_auto)
 
-    def pick(a):  # a is samples x profiles
+    def pick(a):  # a is (rows lo:hi) x profiles
         return np.where(has, a[start, rows], np.nan)
 
     b = pick(slope)
@@ -166,7 +167,8 @@ def fit_lambda_z_samples_major(t, c, candidate, manual, *, min_points=3, tol=ADJ
         corr = np.where(has, np.sign(b) * np.sqrt(pick(r2)), np.nan)
     r2adj_out = pick(r2adj)
     r2adj_out = np.where(npts >= 3, r2adj_out, np.nan)
-    used = candidate & (np.arange(N)[:, None] >= start) & has
+    used = np.zeros((N, P), dtype=bool)
+    used[lo:hi] = cand_t & (np.arange(hi - lo)[:, None] >= start) & has
     return LambdaZFit(
         lamz=-b,
         intercept=np.where(has, intercept, np.nan),
@@ -174,7 +176,7 @@ def fit_lambda_z_samples_major(t, c, candidate, manual, *, min_points=3, tol=ADJ
         r2adj=r2adj_out,
         corr=corr,
         npoints=np.where(has, npts, 0).astype(np.int64),
-        t_first=np.where(has, t[start, rows], np.nan),
+        t_first=np.where(has, t[start + lo, rows], np.nan),
         t_last=np.where(has, tref, np.nan),
         used=used,
     )
