@@ -104,3 +104,18 @@ def test_chunking_does_not_change_results(monkeypatch):
     np.testing.assert_array_equal(whole.lambda_z_used, pieces.lambda_z_used)
     for k in whole.flags:
         np.testing.assert_array_equal(whole.flags[k], pieces.flags[k], err_msg=k)
+
+
+def test_error_names_the_first_bad_profile_across_chunks(monkeypatch):
+    # chunks run on a thread pool; the error still names the first bad profile in input order
+    # (project rule: errors name the profile and sample; common practice, no source)
+    import pkwidgets.engine as engine
+
+    t, c, blq = simulated(60, seed=12)
+    blq[:] = False
+    blq[[23, 41], 5] = True  # BLQ between measured values with the half-LLOQ rule, and no LLOQ
+    c[[23, 41], 4] = c[[23, 41], 6] = 1.0
+    t[[23, 41]] = NOMINAL
+    monkeypatch.setattr(engine, "CHUNK", 4)
+    with pytest.raises(ValueError, match=r"profile 23, sample 5"):
+        nca_arrays(t, c, blq=blq, blq_rules={"between": "half-lloq"})
