@@ -194,8 +194,10 @@ def main(argv=None):
         print(f"target {TARGET_RATE:,} profiles/s at 1e6: {P / wall:,.0f} -> {'met' if P / wall >= TARGET_RATE else 'NOT met'}")
     print(f"target ratio >= {TARGET_RATIO}: min over sizes {min(r[2] for r in rows):.0f} -> "
           f"{'met' if min(r[2] for r in rows) >= TARGET_RATIO else 'NOT met'}")
-    print(f"target peak <= {TARGET_MEMORY:g} x input: {(in_bytes + peak) / in_bytes:.2f} (inputs + peak) -> "
-          f"{'met' if (in_bytes + peak) / in_bytes <= TARGET_MEMORY else 'NOT met'}")
+    verdict = "met" if (in_bytes + peak) / in_bytes <= TARGET_MEMORY else "NOT met"
+    if P < 10**6:
+        verdict += " (the target is for 10^6 profiles; below that the fixed per-chunk working memory dominates)"
+    print(f"target peak <= {TARGET_MEMORY:g} x input: {(in_bytes + peak) / in_bytes:.2f} (inputs + peak) -> {verdict}")
 
 
 if __name__ == "__main__":
