@@ -110,3 +110,16 @@ def test_terminal_dict_reaches_the_right_partition(client):
     pd.testing.assert_frame_equal(got, want, check_exact=False, rtol=1e-12, atol=0)
     row = got[(got.subject == "S002") & (got.period == 1)].iloc[0]
     assert row["LAMZLL"] >= 8 * 0.999 and row["LAMZUL"] <= 48
+
+
+@pytest.mark.slow
+@pytest.mark.filterwarnings("ignore:Port .* is already in use")  # the module's cluster holds 127.0.0.1:8787
+def test_worker_processes_give_the_same_result():
+    # the partition function and its options travel to separate worker processes (pickled) and
+    # still reproduce the in-memory result (reference: in-memory nca on the same rows)
+    df = long_table(n_subjects=10)
+    with distributed.LocalCluster(n_workers=1, threads_per_worker=2, processes=True, host="127.0.0.1",
+                                  dashboard_address=None) as cluster, distributed.Client(cluster):
+        got = by_keys(nca(dd.from_pandas(df, npartitions=3), by=["subject", "period"]).compute())
+    want = by_keys(nca(df, by=["subject", "period"]))
+    pd.testing.assert_frame_equal(got, want, check_exact=False, rtol=1e-12, atol=0)
