@@ -90,9 +90,10 @@ def segment_areas(t1, t2, c1, c2, is_log):
 
     Evaluation: :math:`k\Delta t = \mathrm{log1p}((c_1 - c_2)/c_2)`, so nearly
     equal concentrations (down to adjacent floating-point numbers) keep full
-    precision in ``A``; where :math:`k\Delta t < 10^{-5}` the two terms of
-    ``M`` cancel and the equivalent :math:`M = t_1 A + c_1 \Delta t^2 g(k\Delta t)`
-    with a series for ``g`` is used instead (see ``_g``).
+    precision in ``A``; ``M`` is evaluated in the equivalent moment form
+    :math:`M = t_1 A + c_1 \Delta t^2 g(k\Delta t)` (two positive terms; ``g``
+    by a series for small arguments, see ``_g``), since the two terms of the
+    textbook form cancel on nearly flat segments.
 
     Examples
     --------
@@ -110,16 +111,10 @@ def segment_areas(t1, t2, c1, c2, is_log):
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         x = _log_ratio(c1, c2)  # k * dt
         log_auc = (c1 - c2) * dt / x
-        k = np.log(c1 / c2) / dt
-        textbook = (t1 * c1 - t2 * c2) / k + (c1 - c2) / (k * k)
-        # the two textbook terms cancel on nearly flat segments (relative error
-        # about 1e-16 / x**2): below x = 1e-5 use the moment form t1*A + c1*dt^2*g(x)
-        log_aumc = np.where(x < _FLAT, t1 * log_auc + c1 * dt * dt * _g(x), textbook)
+        # moment form of the textbook AUMC: both terms positive, so no cancellation
+        # on nearly flat segments (the textbook difference loses about 1e-16 / x**2)
+        log_aumc = t1 * log_auc + c1 * dt * dt * _g(x)
     return np.where(is_log, log_auc, lin_auc), np.where(is_log, log_aumc, lin_aumc)
-
-
-#: Below this k*dt a log segment's AUMC uses the cancellation-free moment form.
-_FLAT = 1e-5
 
 
 def _log_ratio(c1, c2):

@@ -31,6 +31,7 @@ Sources
 
 from __future__ import annotations
 
+import decimal
 import math
 
 import numpy as np
@@ -51,12 +52,17 @@ NAN = float("nan")
 
 def _segment(t1, t2, c1, c2, log_down):
     """AUC and AUMC of one segment (explicit formulas, see module notes)."""
-    dt = t2 - t1
     if log_down and c1 > c2 > 0:
-        lr = math.log(c1 / c2)
-        auc = dt * (c1 - c2) / lr
-        aumc = dt * (t1 * c1 - t2 * c2) / lr - dt * dt * (c2 - c1) / (lr * lr)
-        return auc, aumc
+        # textbook log-trapezoid formulas (Gibaldi & Perrier), evaluated in 40-digit
+        # decimal arithmetic so that the reference itself carries no cancellation error
+        with decimal.localcontext() as ctx:
+            ctx.prec = 40
+            T1, T2, C1, C2 = (decimal.Decimal(float(v)) for v in (t1, t2, c1, c2))
+            dt = T2 - T1
+            lr = (C1 / C2).ln()
+            auc = dt * (C1 - C2) / lr
+            aumc = dt * (T1 * C1 - T2 * C2) / lr - dt * dt * (C2 - C1) / (lr * lr)
+            return float(auc), float(aumc)
     return None  # linear: done with numpy.trapezoid by the caller
 
 
