@@ -217,3 +217,41 @@ def test_table_equals_profile_path(theoph):
         row = res.loc[res["Subject"] == subj].iloc[0]
         for code, value in one.items():
             assert row[code] == pytest.approx(value, rel=1e-14, nan_ok=True), code
+
+
+def test_theophylline_remaining_codes(theoph):
+    # The rest of the single-dose parameter set, each from its CDISC definition
+    # (shared/REFERENCES.md) with inputs computed independently here (numpy, scipy).
+    res = pk.nca(theoph, by="Subject", time="Time", conc="conc", dose="Dose", auc_method="linear")
+    for subj, g in theoph.groupby("Subject"):
+        g = g.sort_values("Time")
+        t, c = g["Time"].to_numpy(), g["conc"].to_numpy()
+        row = res.loc[res["Subject"] == subj].iloc[0]
+        dose = g["Dose"].iloc[0]
+        # every Theoph concentration after dosing is measurable: TLST/CLST are the last sample
+        assert row["TLST"] == t[-1] and row["CLST"] == c[-1]
+        adj, m, lr = _best_window_by_linregress(t, c, int(np.argmax(c)))
+        assert row["LAMZLL"] == t[-m] and row["LAMZUL"] == t[-1]
+        # span = fit interval / half-life (CDISC definition)
+        assert row["LAMZSPN"] == pytest.approx((t[-1] - t[-m]) / (np.log(2) / -lr.slope), rel=1e-10)
+        auclst = trapezoid(c, t)
+        aucifp = auclst + np.exp(lr.intercept + lr.slope * t[-1]) / -lr.slope
+        assert row["AUCPEP"] == pytest.approx(100 * (aucifp - auclst) / aucifp, rel=1e-9)
+        assert row["CLFP"] == pytest.approx(dose / aucifp, rel=1e-10)
+        assert row["VZFP"] == pytest.approx(dose / (-lr.slope * aucifp), rel=1e-10)
+        assert row["AUCLSTD"] == pytest.approx(auclst / dose, rel=1e-12)
+        assert row["AUCIFOD"] == pytest.approx((auclst + c[-1] / -lr.slope) / dose, rel=1e-10)
+        # AUMC to infinity: AUMCLST + Clast*Tlast/lz + Clast/lz^2 (Gibaldi & Perrier)
+        lz = -lr.slope
+        aumcifo = trapezoid(t * c, t) + c[-1] * t[-1] / lz + c[-1] / lz**2
+        assert row["AUMCIFO"] == pytest.approx(aumcifo, rel=1e-10)
+        assert row["MRTEVIFO"] == pytest.approx(aumcifo / (auclst + c[-1] / lz), rel=1e-10)
+        # a measurable time-0 sample leaves no lag; otherwise TLAG is the sample before the first measurable one
+        first = int(np.argmax(c > 0))
+        assert row["TLAG"] == (0.0 if first == 0 else t[first - 1])
+
+
+def test_tlag_by_hand():
+    # CDISC: TLAG is the time prior to the first measurable concentration (hand example)
+    r = pk.nca_profile([0, 0.5, 1, 2, 4, 8], [0, 0, 3, 5, 2, 1])
+    assert r["TLAG"] == 0.5
