@@ -163,6 +163,7 @@ class TerminalPhasePicker(widgets.VBox):
 
     def _draw(self):
         v = self.view
+        self._redraw_readout(None)  # the readout first: it is what the user waits for
         for role, m in self._marks.items():
             with m.hold_sync():
                 m.x, m.y = v.points[role]["x"], v.points[role]["y"]
@@ -171,7 +172,6 @@ class TerminalPhasePicker(widgets.VBox):
             self._fit_line.x, self._fit_line.y = v.fit_x, v.fit_y
         with self._tail_line.hold_sync():
             self._tail_line.x, self._tail_line.y = v.tail_x, v.tail_y
-        self._redraw_readout(None)
 
     def _redraw_readout(self, _):
         if getattr(self, "_loading", True):
