@@ -21,13 +21,11 @@ import tempfile
 import time
 from pathlib import Path
 
-import numpy as np
 
 SERVER_TARGET_MS = 20.0
 BROWSER_TARGET_MS = 150.0
 CHROMIUM = "/usr/bin/chromium"
 PROFILE_CODE = """
-import numpy as np
 rng = np.random.default_rng(20240)
 t = np.round(np.concatenate([[0.0], np.geomspace(0.25, 72, 39)]), 3)   # 40 samples, synthetic
 c = 50 * (np.exp(-0.08 * t) - np.exp(-1.5 * t)) * np.exp(rng.normal(0, 0.05, t.size))

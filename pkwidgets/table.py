@@ -283,33 +283,9 @@ def nca(
     dur_p = src.per_profile(duration, prof, P, "duration", decimal) if duration is not None else None
     tau_p = src.per_profile(tau, prof, P, "tau", decimal) if tau is not None else None
 
-    # pad into profiles x samples, ordered by time within each profile
-    idx = np.flatnonzero(keep)
-    order = idx[np.lexsort((t[idx], prof[idx]))]
-    p_sorted = prof[order]
-    starts = np.r_[0, np.flatnonzero(np.diff(p_sorted)) + 1]
-    counts = np.diff(np.r_[starts, len(order)])
-    slot = np.arange(len(order)) - np.repeat(starts, counts)
-    t_sorted = t[order]
-    dup = (np.diff(p_sorted) == 0) & (np.diff(t_sorted) == 0)
-    if dup.any():
-        j = int(np.flatnonzero(dup)[0])
-        a, b = order[j], order[j + 1]
-        raise InputDataError(
-            f"{src.name}: profile {keys.iloc[p_sorted[j]].to_dict()} has time {t_sorted[j]:g} twice "
-            f"({src.where_row(a)} and {src.where_row(b)}); keep one sample per time (or average replicates).",
-            file=src.file, line=src.line(a), column=time, profile=keys.iloc[p_sorted[j]].to_dict())
-    Nmax = int(counts.max())
-    T = np.full((P, Nmax), np.nan)
-    C = np.full((P, Nmax), np.nan)
-    B = np.zeros((P, Nmax), dtype=bool)
-    L = np.full((P, Nmax), np.nan)
-    X = np.zeros((P, Nmax), dtype=bool)
-    T[p_sorted, slot] = t_sorted
-    C[p_sorted, slot] = c[order]
-    B[p_sorted, slot] = blq_a[order]
-    L[p_sorted, slot] = lloq_a[order]
-    X[p_sorted, slot] = src.exclusions(exclude, prof, keys, t, by)[order]
+    pad = _Padding(t, prof, keep, src, keys, time)
+    T, C, B, L = (pad.array(a) for a in (t, c, blq_a, lloq_a))
+    X = pad.array(src.exclusions(exclude, prof, keys, t, by))
     term = _terminal_array(terminal, keys, by, P)
     key_texts = [canonical_key(tuple(r)) for r in keys.itertuples(index=False)]
     sel = None
@@ -331,19 +307,14 @@ def nca(
         res = nca_arrays(T, C, dose=dose_p, route=route, duration=dur_p, tau=tau_p, auc_method=auc_method,
                          terminal=term, exclude=X, blq=B, lloq=L, partial=partial, blq_rules=blq_rules, qc=qc)
     except SampleValueError as exc:  # name the file, line and profile of the sample
-        i = int(order[starts[exc.profile] + exc.sample])
+        i = pad.row_of(exc.profile, exc.sample)
         raise InputDataError(
             f"{src.at(i, conc)}, profile {keys.iloc[exc.profile].to_dict()}: "
             + exc.template.format(where="this BLQ sample"),
             file=src.file, line=src.line(i), column=conc, profile=keys.iloc[exc.profile].to_dict()) from None
     if occasion is not None:
         res.update(_accumulation(res, keys, by, occasion, tau_p))
-    # rows out of time order in the input, per profile
-    unsorted = np.zeros(P, dtype=bool)
-    pi = prof[idx]
-    back = (np.diff(pi) == 0) & (np.diff(t[idx]) < 0)
-    unsorted[pi[1:][back]] = True
-    res.flags["times_sorted"] = res.flags["times_sorted"] | unsorted
+    res.flags["times_sorted"] = res.flags["times_sorted"] | pad.unsorted(t, prof, keep)
     if sel is not None:
         res.flags["selection_stale"] = stale
 
@@ -358,24 +329,15 @@ def nca(
     wide = pd.concat([keys.reset_index(drop=True), pd.DataFrame(cols)], axis=1)
 
     # every input row: used or not, and why
-    status = np.full(n, -1, dtype=np.int16)
-    lz = np.zeros(n, dtype=bool)
-    status[order] = res.status[p_sorted, slot]
-    lz[order] = res.lambda_z_used[p_sorted, slot]
-    reasons = np.array([STATUS_REASONS[s] for s in sorted(STATUS_REASONS)] + [REASON_NO_TIME], dtype=object)
     rows = src.original()
     rows["profile"] = np.where(keep, prof, -1)
+    status = pad.per_row(res.status, fill=-1)
+    reasons = np.array([STATUS_REASONS[s] for s in sorted(STATUS_REASONS)] + [REASON_NO_TIME], dtype=object)
     rows["used"] = status == SampleStatus.USED
     rows["reason"] = reasons[np.where(status < 0, len(reasons) - 1, status)]
-    rows["lambda_z"] = lz
+    rows["lambda_z"] = pad.per_row(res.lambda_z_used, fill=False)
 
-    qct = qc or QCThresholds()
-    fl = [(p, name) for name in FLAGS for p in np.flatnonzero(res.flags[name])]
-    fl.sort()
-    qc_flags = pd.concat(
-        [keys.iloc[[p for p, _ in fl]].reset_index(drop=True),
-         pd.DataFrame({"flag": [nm for _, nm in fl], "severity": [FLAGS[nm][0] for _, nm in fl],
-                       "message": [flag_message(nm, qct) for _, nm in fl]})], axis=1)
+    qc_flags = _flag_table(res.flags, keys, qc or QCThresholds())
     rules = res.settings["blq_rules"]
     settings = dict(res.settings)
     settings.update(
@@ -393,6 +355,64 @@ def nca(
               "duration": dur_p, "tau": tau_p, "keys": key_texts, "lambda_z_used": res.lambda_z_used}
     out._record = NCARecord(rows=rows, qc_flags=qc_flags, settings=settings, units=unit_map, by=by, inputs=inputs)
     return out
+
+
+class _Padding:
+    """Rows of a table placed into profiles x samples arrays, ordered by time within each profile."""
+
+    def __init__(self, t, prof, keep, src, keys, time_column):
+        idx = np.flatnonzero(keep)
+        self.order = order = idx[np.lexsort((t[idx], prof[idx]))]
+        self.profile = p_sorted = prof[order]
+        self.starts = np.r_[0, np.flatnonzero(np.diff(p_sorted)) + 1]
+        counts = np.diff(np.r_[self.starts, len(order)])
+        self.slot = np.arange(len(order)) - np.repeat(self.starts, counts)
+        self.shape = (int(prof.max()) + 1, int(counts.max()))
+        self.n = len(t)
+        t_sorted = t[order]
+        dup = (np.diff(p_sorted) == 0) & (np.diff(t_sorted) == 0)
+        if dup.any():
+            j = int(np.flatnonzero(dup)[0])
+            a, b = order[j], order[j + 1]
+            key = keys.iloc[p_sorted[j]].to_dict()
+            raise InputDataError(
+                f"{src.name}: profile {key} has time {t_sorted[j]:g} twice "
+                f"({src.where_row(a)} and {src.where_row(b)}); keep one sample per time (or average replicates).",
+                file=src.file, line=src.line(a), column=time_column, profile=key)
+
+    def array(self, values):
+        """Per-row values as a (profiles, samples) array, NaN (or False) where no sample."""
+        out = np.zeros(self.shape, dtype=bool) if values.dtype == bool else np.full(self.shape, np.nan)
+        out[self.profile, self.slot] = values[self.order]
+        return out
+
+    def per_row(self, array, fill):
+        """A (profiles, samples) array back onto the input rows; ``fill`` for rows not placed."""
+        out = np.full(self.n, fill, dtype=np.int16 if array.dtype != bool else bool)
+        out[self.order] = array[self.profile, self.slot]
+        return out
+
+    def unsorted(self, t, prof, keep):
+        """Per profile: were its rows out of time order in the input?"""
+        idx = np.flatnonzero(keep)
+        p = prof[idx]
+        back = (np.diff(p) == 0) & (np.diff(t[idx]) < 0)
+        out = np.zeros(self.shape[0], dtype=bool)
+        out[p[1:][back]] = True
+        return out
+
+    def row_of(self, profile, sample):
+        """Input row of a (profile, sample) position."""
+        return int(self.order[self.starts[profile] + sample])
+
+
+def _flag_table(flags, keys, qc):
+    """One row per raised flag: profile keys, flag, severity, message."""
+    raised = sorted((p, name) for name in FLAGS for p in np.flatnonzero(flags[name]))
+    return pd.concat(
+        [keys.iloc[[p for p, _ in raised]].reset_index(drop=True),
+         pd.DataFrame({"flag": [nm for _, nm in raised], "severity": [FLAGS[nm][0] for _, nm in raised],
+                       "message": [flag_message(nm, qc) for _, nm in raised]})], axis=1)
 
 
 def _accumulation(res, keys, by, occasion, tau_p):

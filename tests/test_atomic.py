@@ -28,7 +28,6 @@ import sys
 import textwrap
 import time
 
-import numpy as np
 import pandas as pd
 import pytest
 

@@ -27,7 +27,6 @@ from __future__ import annotations
 
 import math
 import os
-import re
 import traceback
 from dataclasses import dataclass, field
 

@@ -10,7 +10,6 @@ check, and scipy.integrate.trapezoid as the reference library.
 """
 
 import numpy as np
-import pandas as pd
 import pytest
 from scipy.integrate import trapezoid
 

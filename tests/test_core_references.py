@@ -13,7 +13,6 @@ Sources used beside each check:
 """
 
 import numpy as np
-import pandas as pd
 import pytest
 from scipy import stats
 from scipy.integrate import trapezoid
