@@ -3,6 +3,9 @@ in a real browser (Voilà + Debian Chromium), printed side by side with their ta
 
 Targets (issue 4): server-side recompute after a click on a 40-sample profile <= 20 ms;
 browser click-to-readout <= 150 ms.  The profile is synthetic (invented here, fixed seed).
+Also the selection record's growth: appending entries and loading + reading the latest state of
+every profile, at 5,000 and 50,000 entries; linear cost gives a time ratio near 10 (a quadratic
+one near 100).
 
 Usage: .venv/bin/python bench/widget_speed.py [--no-browser] [--clicks N]
 """
@@ -21,11 +24,11 @@ import tempfile
 import time
 from pathlib import Path
 
-
 SERVER_TARGET_MS = 20.0
 BROWSER_TARGET_MS = 150.0
 CHROMIUM = "/usr/bin/chromium"
 PROFILE_CODE = """
+import numpy as np   # inside the text: this code also runs as the browser notebook's cell
 rng = np.random.default_rng(20240)
 t = np.round(np.concatenate([[0.0], np.geomspace(0.25, 72, 39)]), 3)   # 40 samples, synthetic
 c = 50 * (np.exp(-0.08 * t) - np.exp(-1.5 * t)) * np.exp(rng.normal(0, 0.05, t.size))
@@ -57,6 +60,27 @@ def server_side(clicks):
         nca_arrays(t, c, dose=100, auc_method="lin-up/log-down")
         engine.append(time.perf_counter() - t0)
     return 1000 * statistics.median(times), 1000 * max(times), 1000 * statistics.median(engine)
+
+
+def record_scaling(sizes=(5_000, 50_000)):
+    """Seconds to append ``n`` entries (n/2 profiles) and to load the file and read every state."""
+    from pkwidgets import SelectionRecord
+
+    out = []
+    with tempfile.TemporaryDirectory(prefix="pkw-bench-rec-") as tmp:
+        for n in sizes:
+            rec = SelectionRecord()
+            t0 = time.perf_counter()
+            for i in range(n):
+                rec.set_window(f"SYN-{i % (n // 2)}", 1.0, 24.0, "bench", author="bench", fingerprint="a" * 64)
+            append = time.perf_counter() - t0
+            path = rec.save(os.path.join(tmp, f"rec{n}.json"))
+            t0 = time.perf_counter()
+            states = SelectionRecord.load(path).states()
+            load = time.perf_counter() - t0
+            assert len(states) == n // 2
+            out.append((n, append, load))
+    return out
 
 
 def _free_port():
@@ -170,6 +194,13 @@ def main(argv=None):
         print(f"{name:46s} {m:10.2f} {w:9.2f} {tgt:10.0f} {ratio:14.3f}")
     if note:
         print(f"browser measurement skipped: {note}")
+    scaling = record_scaling()
+    (n0, a0, l0), (n1, a1, l1) = scaling
+    print(f"\n{'selection record (n/2 profiles)':46s} {f'{n0} entries':>14s} {f'{n1} entries':>14s} "
+          f"{'time ratio':>11s} {'entry ratio':>12s}")
+    print(f"{'  append n entries, s':46s} {a0:14.3f} {a1:14.3f} {a1 / a0:11.1f} {n1 / n0:12.0f}")
+    print(f"{'  load file + latest state of each profile, s':46s} {l0:14.3f} {l1:14.3f} {l1 / l0:11.1f} "
+          f"{n1 / n0:12.0f}")
     print(json.dumps({name.strip(): round(m, 3) for name, m, _, _ in rows}))
 
 

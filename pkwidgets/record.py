@@ -136,9 +136,29 @@ def profile_fingerprint(time, conc, blq=None) -> str:
 
 
 def canonical_key(key) -> tuple:
-    """Profile key as a tuple of text: ``1`` -> ``("1",)``, ``("1", "A")`` -> ``("1", "A")``."""
-    if isinstance(key, (list, tuple)):
-        items = key
+    """Profile key as a tuple of text, one item per ``by`` column.
+
+    Parameters
+    ----------
+    key : scalar, or list, tuple or 1-D array of scalars
+        One value per ``by`` column; a scalar is a one-column key.
+
+    Returns
+    -------
+    tuple of str
+        ``str(value).strip()`` of each item (NumPy scalars first turned into
+        Python ones), so the integer ``1`` of a DataFrame and the text ``"1"``
+        read from a CSV file name the same profile.
+
+    Examples
+    --------
+    >>> canonical_key(1)
+    ('1',)
+    >>> canonical_key(("1", " A"))
+    ('1', 'A')
+    """
+    if isinstance(key, (list, tuple, np.ndarray)):
+        items = np.ravel(key).tolist() if isinstance(key, np.ndarray) else key
     else:
         items = (key,)
     out = []
@@ -150,27 +170,33 @@ def canonical_key(key) -> tuple:
 
 
 class SelectionState(dict):
-    """The selection of one profile: ``window`` ((start, end) or None) and ``exclude`` (times).
+    """The selection of one profile after its latest record entry.
 
-    Also carries ``fingerprint`` and the last entry's ``reason``, ``author``
-    and ``timestamp``.
+    A ``dict`` with the keys ``window`` (``[start, end]`` or None for the
+    automatic search) and ``exclude`` (times left out of the fit), plus
+    ``fingerprint``, ``reason``, ``author`` and ``timestamp`` of that entry;
+    the properties give the first ones typed.
     """
 
     @property
     def window(self):
+        """(start, end) as floats, or None for the automatic search."""
         w = self.get("window")
         return None if w is None else (float(w[0]), float(w[1]))
 
     @property
     def exclude(self) -> list:
+        """Sampling times left out of the lambda-z fit (floats, sorted as recorded)."""
         return [float(x) for x in self.get("exclude", [])]
 
     @property
     def fingerprint(self):
+        """:func:`profile_fingerprint` of the data the choice was made on, or None."""
         return self.get("fingerprint")
 
     @property
     def is_automatic(self) -> bool:
+        """True when there is no window and nothing is left out."""
         return self.window is None and not self.exclude
 
 
@@ -195,13 +221,14 @@ def _now():
     return _dt.datetime.now(_dt.timezone.utc).replace(microsecond=0).isoformat().replace("+00:00", "Z")
 
 
-def _finite(x, name):
+def _finite(x, name, key):
     try:
         v = float(x)
     except (TypeError, ValueError):
-        raise TypeError(f"{name} must be a number; got {x!r}.") from None
+        raise TypeError(f"{name} of profile {_label(key)} must be a number (a sampling time); "
+                        f"got {x!r}.") from None
     if not math.isfinite(v):
-        raise ValueError(f"{name} must be finite; got {v!r}.")
+        raise ValueError(f"{name} of profile {_label(key)} must be a finite time; got {v!r}.")
     return v
 
 
@@ -229,6 +256,20 @@ class SelectionRecord:
     def __init__(self, path=None, entries=None):
         self.path = None if path is None else os.fspath(path)
         self.entries: list[dict] = list(entries or [])
+        # profile key tuple -> positions of its entries in ``entries``, oldest first; built
+        # incrementally, so appending is O(1) amortised and loading is linear in the entries
+        self._by_key: dict[tuple, list[int]] = {}
+        self._indexed = 0
+
+    def _positions(self) -> dict:
+        """``{key tuple: [entry positions]}``, caught up with any entries appended since the last call."""
+        n = len(self.entries)
+        if n < self._indexed:  # entries were removed or replaced: index again from the start
+            self._by_key, self._indexed = {}, 0
+        for i in range(self._indexed, n):
+            self._by_key.setdefault(tuple(self.entries[i]["profile"]), []).append(i)
+        self._indexed = n
+        return self._by_key
 
     # ---------------------------------------------------------------- I/O
     @classmethod
@@ -276,6 +317,7 @@ class SelectionRecord:
         return cls(path, entries)
 
     def to_json(self) -> str:
+        """The file text: the schema header and every entry, indented JSON ending in a newline."""
         doc = {"schema": SCHEMA, "schema_version": SCHEMA_VERSION, "fingerprint": FINGERPRINT_FORM,
                "entries": self.entries}
         return json.dumps(doc, indent=1, ensure_ascii=False) + "\n"
@@ -317,8 +359,8 @@ class SelectionRecord:
         a choice without one is never applied by :func:`pkwidgets.nca`
         (it cannot be checked against the data).
         """
-        s = _finite(start, "window start")
-        e = _finite(end, "window end")
+        s = _finite(start, "window start", key)
+        e = _finite(end, "window end", key)
         if not e > s:
             raise ValueError(f"window end ({e!r}) must be after its start ({s!r}) for profile {_label(key)}.")
 
@@ -330,7 +372,7 @@ class SelectionRecord:
 
     def set_exclusions(self, key, times, reason, author=None, *, fingerprint=None) -> dict:
         """Leave the samples at ``times`` out of the lambda-z fit of ``key`` (empty: none)."""
-        ts = sorted({_finite(x, "excluded time") for x in np.ravel(np.asarray(times, dtype=object))})
+        ts = sorted({_finite(x, "excluded time", key) for x in np.ravel(np.asarray(times, dtype=object))})
 
         def apply(st):
             st["exclude"] = ts
@@ -345,32 +387,39 @@ class SelectionRecord:
 
     # --------------------------------------------------------------- reading
     def state(self, key):
-        """Latest :class:`SelectionState` of a profile, or None if it has no entry."""
-        k = list(canonical_key(key))
-        for e in reversed(self.entries):
-            if e["profile"] == k:
-                st = SelectionState(e["state"])
-                st["fingerprint"] = e.get("fingerprint")
-                st["reason"] = e["reason"]
-                st["author"] = e["author"]
-                st["timestamp"] = e["timestamp"]
-                return st
-        return None
+        """Latest :class:`SelectionState` of a profile, or None if it has no entry.
+
+        Parameters
+        ----------
+        key : scalar or sequence
+            Profile key; ``1`` and ``"1"`` name the same profile (:func:`canonical_key`).
+        """
+        pos = self._positions().get(canonical_key(key))
+        return None if not pos else _state_of(self.entries[pos[-1]])
 
     def states(self) -> dict:
-        """``{key tuple: SelectionState}`` of every profile in the record."""
-        return {tuple(e["profile"]): self.state(e["profile"]) for e in self.entries}
+        """``{key tuple: SelectionState}`` of every profile in the record (latest entry of each)."""
+        return {k: _state_of(self.entries[pos[-1]]) for k, pos in self._positions().items()}
 
     def history(self, key) -> list:
-        """All entries of one profile, oldest first."""
-        k = list(canonical_key(key))
-        return [e for e in self.entries if e["profile"] == k]
+        """All entries of one profile, oldest first (empty list if it has none)."""
+        return [self.entries[i] for i in self._positions().get(canonical_key(key), [])]
 
     def __len__(self):
         return len(self.entries)
 
     def __repr__(self):
         return f"SelectionRecord(path={self.path!r}, profiles={len(self.states())}, entries={len(self.entries)})"
+
+
+def _state_of(entry) -> SelectionState:
+    """The :class:`SelectionState` an entry leaves its profile in."""
+    st = SelectionState(entry["state"])
+    st["fingerprint"] = entry.get("fingerprint")
+    st["reason"] = entry["reason"]
+    st["author"] = entry["author"]
+    st["timestamp"] = entry["timestamp"]
+    return st
 
 
 def _label(key):
@@ -390,16 +439,22 @@ def _entry_problem(e):
     if not isinstance(st, dict) or "window" not in st or "exclude" not in st:
         return "'state' must hold 'window' and 'exclude'"
     w = st["window"]
-    if w is not None and not (isinstance(w, list) and len(w) == 2 and all(isinstance(x, (int, float)) for x in w)):
-        return "'state.window' must be null or [start, end]"
-    if not isinstance(st["exclude"], list) or not all(isinstance(x, (int, float)) for x in st["exclude"]):
-        return "'state.exclude' must be a list of times"
+    if w is not None and not (isinstance(w, list) and len(w) == 2 and all(_is_time(x) for x in w) and w[1] > w[0]):
+        return f"'state.window' must be null or [start, end] with finite times, end after start; got {w!r}"
+    if not isinstance(st["exclude"], list) or not all(_is_time(x) for x in st["exclude"]):
+        return f"'state.exclude' must be a list of finite times; got {st['exclude']!r}"
     if not isinstance(e["reason"], str) or not e["reason"].strip():
         return "'reason' must be a non-empty text"
     fp = e.get("fingerprint")
-    if fp is not None and not (isinstance(fp, str) and len(fp) == 64):
-        return "'fingerprint' must be 64 hexadecimal characters or null"
+    if fp is not None and not (isinstance(fp, str) and len(fp) == 64
+                               and all(ch in "0123456789abcdef" for ch in fp)):
+        return "'fingerprint' must be 64 lower-case hexadecimal characters or null"
     return ""
+
+
+def _is_time(x):
+    """A JSON number that is a finite time (not a boolean, NaN or infinity)."""
+    return isinstance(x, (int, float)) and not isinstance(x, bool) and math.isfinite(x)
 
 
 def coerce_record(selections) -> SelectionRecord:

