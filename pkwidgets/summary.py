@@ -12,7 +12,8 @@ import pandas as pd
 
 from .blq import parse_concentrations
 
-__all__ = ["summarize", "STATISTICS", "geometric_cv", "with_groups", "blq_positions", "mean_profiles"]
+__all__ = ["summarize", "STATISTICS", "geometric_cv", "with_groups", "blq_positions", "mean_profiles",
+           "reference_median"]
 
 #: Statistic columns of :func:`summarize`, in order.
 STATISTICS = ("N", "Mean", "SD", "CV%", "Geo. mean", "Geo. CV%", "Median", "Min", "Max")
@@ -121,19 +122,21 @@ def summarize(table, *, by=None, parameters=None, units=None) -> pd.DataFrame:
     >>> summarize(df, by="arm")
     Traceback (most recent call last):
     ...
-    KeyError: "summarize: grouping column(s) ['arm'] not in the table; columns are ['dose', 'CMAX']."
+    KeyError: "summarize: grouping column(s) ['arm'] not in the table; columns are ['dose', 'CMAX']. Pass by= some of these, or None for one summary over all profiles."
     """
     by = [] if by is None else ([by] if isinstance(by, str) else list(by))
     missing = [c for c in by if c not in table.columns]
     if missing:
-        raise KeyError(f"summarize: grouping column(s) {missing} not in the table; columns are {list(table.columns)}.")
+        raise KeyError(f"summarize: grouping column(s) {missing} not in the table; columns are {list(table.columns)}. "
+                       "Pass by= some of these, or None for one summary over all profiles.")
     if parameters is None:
         parameters = [c for c in table.columns if c not in by and pd.api.types.is_numeric_dtype(table[c])
                       and table[c].notna().any()]
     else:
         bad = [c for c in parameters if c not in table.columns]
         if bad:
-            raise KeyError(f"summarize: parameter column(s) {bad} not in the table.")
+            raise KeyError(f"summarize: parameter column(s) {bad} not in the table; numeric columns are "
+                           f"{[c for c in table.columns if pd.api.types.is_numeric_dtype(table[c])]}.")
     units = getattr(table, "units", None) if units is None else units
     units = units if isinstance(units, dict) else {}
     frame = pd.DataFrame(table)
@@ -165,29 +168,42 @@ def with_groups(table, group_by) -> pd.DataFrame:
     pandas.DataFrame
         The table with the group columns inserted after the profile keys.
         A profile's group value is that of its first row; a column whose
-        values all read as numbers becomes numeric (so 10 sorts before 100).
+        values all read as numbers becomes numeric (so 10 sorts before 100),
+        and integer-valued (``10`` rather than ``10.0``) when every value is whole.
 
     Raises
     ------
     KeyError
-        If a group column is not in the input rows.
+        If a group column is not in the input rows (the message names the
+        data file and its columns).
     """
     group_by = [group_by] if isinstance(group_by, str) else list(group_by or [])
     out = pd.DataFrame(table).copy()
     rows = table.rows
     missing = [g for g in group_by if g not in out.columns and g not in rows.columns]
     if missing:
-        raise KeyError(f"group_by column(s) {missing} are neither profile keys nor columns of the data; "
-                       f"data columns are {list(rows.columns)}.")
+        source = table.settings.get("source") or "the data"
+        data_cols = [c for c in rows.columns if c not in ("profile", "used", "lambda_z", "reason")]
+        raise KeyError(f"group_by column(s) {missing} are neither profile keys nor columns of {source}; its columns "
+                       f"are {data_cols}. Set group_by to some of these, or [] for one summary over all profiles.")
     first = rows[rows["profile"] >= 0].groupby("profile", sort=True).first()
     pos = len(table.record.by)
     for g in group_by:
         if g not in out.columns:
             col = first[g].reindex(range(len(out)))
-            num = pd.to_numeric(col, errors="coerce")
-            out.insert(pos, g, (num if num.notna().all() else col).to_numpy())
+            out.insert(pos, g, _as_numbers(col).to_numpy())
             pos += 1
     return out
+
+
+def _as_numbers(col: pd.Series) -> pd.Series:
+    """Numeric copy of a group column when every value reads as a number (int when all whole), else as is."""
+    num = pd.to_numeric(col, errors="coerce")
+    if len(num) == 0 or num.isna().any():
+        return col
+    if np.all(np.isfinite(num)) and np.all(num == np.round(num)) and np.all(np.abs(num) < 2**53):
+        return num.astype(np.int64)
+    return num
 
 
 def _conc_values(rows, conc, blq=None):
@@ -266,11 +282,67 @@ def mean_profiles(rows, *, group_by, time, conc, blq=None) -> pd.DataFrame:
     vals, is_blq = _conc_values(rows, conc, blq)
     d = rows[group_by].copy() if group_by else pd.DataFrame(index=rows.index)
     for g in group_by:
-        num = pd.to_numeric(d[g], errors="coerce")
-        if num.notna().all():
-            d[g] = num
+        d[g] = _as_numbers(d[g])
     d["time"] = pd.to_numeric(rows[time], errors="coerce").to_numpy()
     d["c"] = np.where(is_blq, 0.0, vals)
     d = d.dropna(subset=["time", "c"])
-    g = d.groupby(group_by + ["time"], sort=True)["c"]
+    g = d.groupby(group_by + ["time"], sort=True, dropna=False)["c"]  # a blank group value stays a group
     return g.agg(n="count", mean="mean", sd="std").reset_index()
+
+
+def reference_median(table, column, reference, parameter="TMAX") -> float:
+    r"""Median of one parameter over the profiles of a reference group.
+
+    Used for the early-exposure partial AUC, cut at the median TMAX of the
+    reference treatment (FDA product-specific guidance practice, from memory).
+    The parameter itself comes from :func:`pkwidgets.nca`; this only takes
+    the median of its finite values.
+
+    Parameters
+    ----------
+    table : DataFrame
+        One row per profile with ``column`` and ``parameter``.
+    column : str
+        Group column (e.g. the treatment column).
+    reference : object
+        Value of ``column`` that marks the reference profiles (compared as text,
+        so ``1`` and ``"1"`` match).
+    parameter : str
+        Parameter column; default ``"TMAX"``.
+
+    Returns
+    -------
+    float
+        :math:`\operatorname{median}\{p_i : \text{column}_i = \text{reference}, p_i \text{ finite}\}`.
+
+    Raises
+    ------
+    KeyError
+        If ``column`` or ``parameter`` is not in the table.
+    ValueError
+        If no reference profile has a finite value.
+
+    Examples
+    --------
+    >>> df = pd.DataFrame({"trt": ["R", "R", "R", "T"], "TMAX": [1.0, 2.0, 4.0, 0.5]})
+    >>> reference_median(df, "trt", "R")
+    2.0
+    >>> reference_median(df, "trt", "X")
+    Traceback (most recent call last):
+    ...
+    ValueError: reference='X': no profile with trt = 'X' has a finite TMAX; values of trt are ['R', 'T']. Set reference to one of them, or None to skip the early-exposure cut.
+    """
+    if column is None:
+        raise ValueError(f"reference={reference!r} needs the column that holds it: map the treatment column "
+                         "(columns={'treatment': ...}) or set reference=None to skip the early-exposure cut.")
+    for name, what in ((column, "group column"), (parameter, "parameter")):
+        if name is None or name not in table.columns:
+            raise KeyError(f"reference_median: {what} {name!r} is not in the table; columns are {list(table.columns)}.")
+    groups = table[column].astype(str)
+    values = pd.to_numeric(table.loc[(groups == str(reference)).to_numpy(), parameter], errors="coerce").to_numpy(float)
+    values = values[np.isfinite(values)]
+    if values.size == 0:
+        raise ValueError(f"reference={reference!r}: no profile with {column} = {str(reference)!r} has a finite "
+                         f"{parameter}; values of {column} are {sorted(groups.unique())}. Set reference to one of "
+                         "them, or None to skip the early-exposure cut.")
+    return float(np.median(values))

@@ -91,3 +91,98 @@ def test_blq_positions_and_mean_profiles():
     assert m.loc[2, "mean"] == pytest.approx(1.5)  # BLQ as 0: (0 + 3) / 2
     assert m.loc[3, "n"] == 1  # missing concentration left out
     assert m.loc[1, "sd"] == pytest.approx(statistics.stdev([5, 4]))
+
+
+# ---------------------------------------------------------------------------- edge cases and record helpers
+# Sources: the median (Python ``statistics.median``); the reference-median TMAX cut: FDA product-specific
+# guidance practice (from memory); labels and layout of the record: common practice, no source.
+
+from pkwidgets.report import analysis_setup, format_group_value, group_labels, label_groups, _header_html  # noqa: E402
+from pkwidgets.summary import reference_median  # noqa: E402
+
+
+def test_summarize_all_zero_nan_and_inf_group():
+    df = pd.DataFrame({"g": ["a", "a", "b", "b"], "AUCLST": [0.0, 0.0, np.nan, np.inf]})
+    s = summarize(df, by=["g"]).set_index("g")
+    assert s.loc["a", "N"] == 2 and s.loc["a", "Mean"] == 0.0
+    assert math.isnan(s.loc["a", "CV%"])  # mean 0: CV undefined
+    assert math.isnan(s.loc["a", "Geo. mean"]) and math.isnan(s.loc["a", "Geo. CV%"])  # log of 0 undefined
+    assert s.loc["b", "N"] == 0 and math.isnan(s.loc["b", "Mean"]) and math.isnan(s.loc["b", "Max"])
+
+
+@pytest.mark.parametrize("by", [None, [], ()])
+def test_summarize_without_groups_summarises_all_profiles(by):
+    df = pd.DataFrame({"CMAX": [1.0, 2.0, 6.0]})
+    s = summarize(df, by=by)
+    assert list(s.columns[:2]) == ["PPTESTCD", "unit"] and s.loc[0, "N"] == 3
+    assert s.loc[0, "Median"] == statistics.median([1.0, 2.0, 6.0])
+
+
+def test_mean_profiles_keeps_rows_with_a_blank_group_value():
+    rows = pd.DataFrame({"grp": ["x", None, "x"], "t": [1, 1, 2], "c": ["4", "2", "3"]})
+    m = mean_profiles(rows, group_by="grp", time="t", conc="c")
+    assert m["n"].sum() == 3  # no row silently dropped
+
+
+def test_reference_median_and_its_errors():
+    df = pd.DataFrame({"trt": ["R", "R", "R", "R", "T"], "TMAX": [1.0, 2.0, 4.0, np.nan, 0.5]})
+    assert reference_median(df, "trt", "R") == statistics.median([1.0, 2.0, 4.0])  # NaN left out
+    with pytest.raises(ValueError, match=r"no profile with trt = 'X'.*values of trt are \['R', 'T'\]"):
+        reference_median(df, "trt", "X")
+    with pytest.raises(ValueError, match=r"map the treatment column"):
+        reference_median(df, None, "R")
+    with pytest.raises(KeyError, match=r"group column 'arm' is not in the table"):
+        reference_median(df, "arm", "R")
+
+
+@pytest.mark.parametrize("value, unit, expected", [
+    (10.0, "mg", "10 mg"), (2.5, "mg", "2.5 mg"), ("10.0", "mg", "10 mg"), (np.int64(3), "", "3"),
+    ("R", "", "R"), (float("nan"), "mg", "missing"),
+])
+def test_format_group_value(value, unit, expected):
+    assert format_group_value(value, unit) == expected
+
+
+def test_group_labels_with_units_and_several_columns():
+    df = pd.DataFrame({"dose": [10.0, 100.0], "period": [1, 2], "treatment": ["R", "T"]})
+    assert group_labels(df, "dose", {"dose": "mg"}).tolist() == ["dose 10 mg", "dose 100 mg"]
+    assert group_labels(df, ["period", "treatment"]).tolist() == ["period 1, treatment R", "period 2, treatment T"]
+    assert group_labels(df, None).tolist() == ["all", "all"]
+    shown = label_groups(df, {"dose": "mg"})
+    assert shown["dose"].tolist() == ["10 mg", "100 mg"] and df["dose"].tolist() == [10.0, 100.0]  # copy
+
+
+_SETUP = dict(data_path="study.csv", output_dir="out", time_unit="h", conc_unit="ng/mL", dose_unit="mg",
+              route="extravascular", dose=None, auc_method="linear", blq_rules=None, selection_record=None)
+
+
+def test_analysis_setup_roles_keys_and_units():
+    s = analysis_setup(columns={"subject": "ID", "time": "T", "conc": "C", "dose": "AMT", "period": "PER",
+                                "treatment": "TRT", "nominal_time": "NT"}, group_by="TRT", **_SETUP)
+    assert s.by == ["ID", "PER", "TRT"] and s.group_by == ["TRT"] and s.mean_time == "NT"
+    assert s.group_units == {"AMT": "mg"} and s.nca_options["dose"] == "AMT"
+    assert s.shown_keys == ["ID", "PER", "TRT"]
+    assert s.parameters["selection_record"] == s.nca_options["selections"]
+
+
+@pytest.mark.parametrize("columns, error, match", [
+    ({"subject": "ID", "time": "T"}, ValueError, r"Required role\(s\) \['conc'\] missing.*study\.csv"),
+    ({"subject": "ID", "time": "T", "conc": "C", "dos": "AMT"}, ValueError, r"unknown role\(s\) \['dos'\]"),
+    (["ID", "T", "C"], TypeError, r"columns must be a dict"),
+])
+def test_analysis_setup_bad_columns(columns, error, match):
+    with pytest.raises(error, match=match):
+        analysis_setup(columns=columns, group_by=None, **_SETUP)
+
+
+def test_record_header_folds_fingerprints_and_keeps_them_all():
+    fps = [f"{i:064x}" for i in range(30)]
+    info = {"notebook": "single_dose", "parameters": {"group_by": ["dose"]},
+            "settings": {"route": "extravascular", "blq_rules": {"before": "zero"},
+                         "selections": {"path": "sel.json", "applied": [], "stale": [], "unmatched": [],
+                                        "fingerprints": fps}}}
+    text = _header_html(info)
+    assert "<details>" in text and "30 profile fingerprints" in text
+    assert all(f in text for f in fps)  # complete: every fingerprint is in the record
+    assert text.index("<details>") < text.index(fps[0])  # folded: listed inside the details element
+    assert "before=zero" in text and "extravascular" in text
