@@ -18,6 +18,7 @@ import hashlib
 import html
 import json
 import os
+from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
@@ -26,6 +27,16 @@ from .io import write_atomic
 
 __all__ = [
     "CAUTION",
+    "ROLES",
+    "AnalysisSetup",
+    "analysis_setup",
+    "display_defaults",
+    "data_check",
+    "key_parameters",
+    "format_group_value",
+    "group_labels",
+    "label_groups",
+    "export_results",
     "sha256_file",
     "run_info",
     "plot_all_profiles",
@@ -104,13 +115,287 @@ def run_info(data_path, table, *, notebook, parameters, now=None) -> dict:
     })
 
 
+# ---------------------------------------------------------------------------- analysis notebooks
+
+#: Column roles an analysis notebook's ``columns`` parameter may name; the first three are required.
+ROLES = ("subject", "time", "conc", "dose", "period", "day", "treatment", "analyte", "blq", "lloq",
+         "nominal_time", "tau")
+_KEY_ROLES = ("period", "day", "treatment", "analyte")
+
+
+@dataclass(frozen=True)
+class AnalysisSetup:
+    """Column roles and :func:`pkwidgets.nca` options of one analysis notebook run.
+
+    Attributes
+    ----------
+    by : list of str
+        Profile keys: the subject column, then period, day, treatment and
+        analyte columns when the roles name them.
+    time, conc : str
+        Time and concentration columns.
+    blq : str or None
+        BLQ flag column.
+    mean_time : str
+        Column for mean curves: the nominal time when given, else ``time``.
+    group_by : list of str
+        Summary groups (``[]``: one group of all profiles).
+    group_units : dict
+        Group column -> unit for labels (the dose column -> ``dose_unit``).
+    selection_record : str
+        Path of the terminal-phase record (may not exist yet).
+    nca_options : dict
+        Keyword arguments for :func:`pkwidgets.nca`.
+    parameters : dict
+        The notebook's parameter values, for :func:`run_info`.
+    """
+
+    by: list
+    time: str
+    conc: str
+    blq: str | None
+    mean_time: str
+    group_by: list
+    group_units: dict
+    selection_record: str
+    nca_options: dict
+    parameters: dict = field(default_factory=dict)
+
+    @property
+    def shown_keys(self) -> list:
+        """Profile keys then group columns, each once (the leading columns of a parameter table)."""
+        return list(dict.fromkeys(self.by + self.group_by))
+
+
+def analysis_setup(*, data_path, output_dir, columns, time_unit, conc_unit, dose_unit, route, dose, auc_method,
+                   blq_rules, group_by, selection_record, nca_extra=None, **own) -> AnalysisSetup:
+    """Read an analysis notebook's parameters into column roles and :func:`pkwidgets.nca` options.
+
+    Parameters
+    ----------
+    data_path, output_dir : str
+        Data file and output folder.
+    columns : dict
+        Role -> column name; roles are those of :data:`ROLES`, ``subject``,
+        ``time`` and ``conc`` required.
+    time_unit, conc_unit, dose_unit, route, dose, auc_method, blq_rules
+        Passed to :func:`pkwidgets.nca` (``dose`` is used when ``columns``
+        names no dose column).
+    group_by : str, list of str or None
+        Summary groups; None or ``[]`` for one group of all profiles.
+    selection_record : str or None
+        Terminal-phase record; None means ``terminal_selection.json`` in
+        ``output_dir``.
+    nca_extra : dict, optional
+        Further :func:`pkwidgets.nca` options of the notebook (``tau``,
+        ``occasion``...).
+    **own
+        The notebook's other parameters (recorded only).
+
+    Returns
+    -------
+    AnalysisSetup
+
+    Raises
+    ------
+    TypeError
+        If ``columns`` is not a dict.
+    ValueError
+        If a required role is missing or a role is unknown (a misspelt role
+        would otherwise be ignored).
+
+    Examples
+    --------
+    >>> s = analysis_setup(data_path="d.csv", output_dir="out", columns={"subject": "ID", "time": "T", "conc": "C"},
+    ...                    time_unit="h", conc_unit="ng/mL", dose_unit="mg", route="extravascular", dose=100,
+    ...                    auc_method="linear", blq_rules=None, group_by=None, selection_record=None)
+    >>> s.by, s.group_by, s.nca_options["dose"], s.selection_record
+    (['ID'], [], 100, 'out/terminal_selection.json')
+    >>> analysis_setup(data_path="d.csv", output_dir="out", columns={"subjct": "ID", "time": "T", "conc": "C"},
+    ...                time_unit="h", conc_unit="ng/mL", dose_unit="mg", route="extravascular", dose=100,
+    ...                auc_method="linear", blq_rules=None, group_by=None, selection_record=None)
+    Traceback (most recent call last):
+    ...
+    ValueError: columns: unknown role(s) ['subjct']; roles are subject, time, conc, dose, period, day, treatment, analyte, blq, lloq, nominal_time, tau. Required role(s) ['subject'] missing: map each to its column name in d.csv, e.g. columns={'subject': 'ID', ...}.
+    """
+    if not isinstance(columns, dict):
+        raise TypeError(f"columns must be a dict from role to column name (e.g. {{'subject': 'ID', 'time': 'TIME', "
+                        f"'conc': 'CONC'}}); got {type(columns).__name__}.")
+    unknown = [r for r in columns if r not in ROLES]
+    missing = [r for r in ROLES[:3] if not columns.get(r)]
+    if unknown or missing:
+        parts = []
+        if unknown:
+            parts.append(f"unknown role(s) {unknown}; roles are {', '.join(ROLES)}.")
+        if missing:
+            parts.append(f"Required role(s) {missing} missing: map each to its column name in {data_path}, "
+                         f"e.g. columns={{{missing[0]!r}: 'ID', ...}}.")
+        raise ValueError("columns: " + " ".join(parts))
+    roles = {r: c for r, c in columns.items() if c}
+    by = [roles["subject"]] + [roles[r] for r in _KEY_ROLES if r in roles]
+    group_by = [group_by] if isinstance(group_by, str) else list(group_by or [])
+    selection_record = selection_record or os.path.join(output_dir, "terminal_selection.json")
+    options = dict(by=by, time=roles["time"], conc=roles["conc"], dose=roles.get("dose") or dose,
+                   blq=roles.get("blq"), lloq=roles.get("lloq"),
+                   units={"time": time_unit, "conc": conc_unit, "dose": dose_unit}, route=route,
+                   auc_method=auc_method, blq_rules=blq_rules, selections=selection_record)
+    options.update(nca_extra or {})
+    parameters = dict(data_path=data_path, output_dir=output_dir, columns=columns, time_unit=time_unit,
+                      conc_unit=conc_unit, dose_unit=dose_unit, route=route, dose=dose, auc_method=auc_method,
+                      blq_rules=blq_rules, group_by=group_by, selection_record=selection_record, **own)
+    return AnalysisSetup(by=by, time=roles["time"], conc=roles["conc"], blq=roles.get("blq"),
+                         mean_time=roles.get("nominal_time") or roles["time"], group_by=group_by,
+                         group_units={roles["dose"]: dose_unit} if roles.get("dose") and dose_unit else {},
+                         selection_record=selection_record, nca_options=options, parameters=parameters)
+
+
+def display_defaults() -> None:
+    """Figure resolution and table display options shared by the analysis notebooks (no computation)."""
+    import matplotlib.pyplot as plt
+
+    plt.rcParams["figure.dpi"] = 72
+    for name, value in (("display.precision", 4), ("display.max_rows", 300), ("display.max_columns", 80),
+                        ("display.width", 200)):
+        pd.set_option(name, value)
+
+
+def data_check(table):
+    """Counts of the data check and BLQ samples by position.
+
+    Parameters
+    ----------
+    table : NCATable
+        Result of :func:`pkwidgets.nca` (its settings name the columns).
+
+    Returns
+    -------
+    counts : pandas.DataFrame
+        Rows in file, profiles, samples used, rows not used, profile keys.
+    blq : pandas.DataFrame
+        :func:`pkwidgets.summary.blq_positions` of the input rows.
+    """
+    from .summary import blq_positions
+
+    rows, cols, by = table.rows, table.settings["columns"], list(table.settings["by"])
+    counts = pd.DataFrame(
+        {"value": [len(rows), len(table), int(rows["used"].sum()), len(table.unused), ", ".join(by)]},
+        index=["rows in file", "profiles", "samples used", "rows not used", "profile keys"])
+    return counts, blq_positions(rows, by=by, time=cols["time"], conc=cols["conc"], blq=cols.get("blq"))
+
+
+def key_parameters(table, codes) -> list:
+    """The codes of ``codes`` that are columns of ``table``, then its partial-AUC columns, each once.
+
+    Examples
+    --------
+    >>> key_parameters(pd.DataFrame(columns=["ID", "CMAX", "AUCTAU"]), ["CMAX", "TMAX", "AUCTAU"])
+    ['CMAX', 'AUCTAU']
+    """
+    partial = list(getattr(table, "settings", {}).get("partial", []) or [])
+    return list(dict.fromkeys([c for c in codes if c in table.columns] + [c for c in partial if c in table.columns]))
+
+
+def format_group_value(value, unit="") -> str:
+    """A group value as a label: whole numbers without ``.0``, then the unit.
+
+    Examples
+    --------
+    >>> format_group_value(10.0, "mg"), format_group_value(2.5, "mg"), format_group_value("R")
+    ('10 mg', '2.5 mg', 'R')
+    >>> format_group_value(float("nan"), "mg")
+    'missing'
+    """
+    if value is None or (isinstance(value, (float, np.floating)) and np.isnan(value)):
+        return "missing"
+    if unit and isinstance(value, str):  # a dose read as text ("10.0")
+        num = pd.to_numeric(value, errors="coerce")
+        value = value if pd.isna(num) else float(num)
+    if isinstance(value, (int, float, np.integer, np.floating)) and not isinstance(value, bool):
+        text = f"{int(value)}" if float(value).is_integer() and abs(value) < 2**53 else f"{float(value):g}"
+    else:
+        text = str(value)
+    return f"{text} {unit}" if unit else text
+
+
+def group_labels(frame, group_by, units=None) -> pd.Series:
+    """One label per row naming its group, e.g. ``"dose 10 mg"`` or ``"period 1, treatment R"``.
+
+    Parameters
+    ----------
+    frame : DataFrame
+        Rows with the ``group_by`` columns.
+    group_by : str or list of str or None
+        Group columns; none gives ``"all"`` for every row.
+    units : dict, optional
+        Column -> unit shown after its values (the dose column -> dose unit).
+
+    Examples
+    --------
+    >>> group_labels(pd.DataFrame({"dose": [10.0, 30.0]}), ["dose"], {"dose": "mg"}).tolist()
+    ['dose 10 mg', 'dose 30 mg']
+    """
+    group_by = [group_by] if isinstance(group_by, str) else list(group_by or [])
+    units = units or {}
+    if not group_by:
+        return pd.Series("all", index=frame.index)
+    parts = [frame[g].map(lambda v, g=g: f"{g} {format_group_value(v, units.get(g, ''))}") for g in group_by]
+    return pd.concat(parts, axis=1).agg(", ".join, axis=1)
+
+
+def label_groups(frame, units) -> pd.DataFrame:
+    """Copy of a table (e.g. summaries) for display, with unit-bearing group columns as labels ("10 mg").
+
+    Examples
+    --------
+    >>> label_groups(pd.DataFrame({"dose": [10.0], "N": [6]}), {"dose": "mg"})["dose"].tolist()
+    ['10 mg']
+    """
+    out = pd.DataFrame(frame).copy()
+    for col, unit in (units or {}).items():
+        if col in out.columns:
+            out[col] = out[col].map(lambda v, u=unit: format_group_value(v, u))
+    return out
+
+
+def export_results(output_dir, frames, info) -> list:
+    """Write the analysis exports: each frame as CSV, and the record header as ``run_info.json``.
+
+    Parameters
+    ----------
+    output_dir : str
+        Existing or new folder.
+    frames : dict
+        File name (``*.csv``) -> DataFrame.
+    info : dict
+        From :func:`run_info`.
+
+    Returns
+    -------
+    list of str
+        File names written, in order.
+    """
+    from .io import write_csv_atomic
+
+    os.makedirs(output_dir, exist_ok=True)
+    for name, frame in frames.items():
+        write_csv_atomic(frame, os.path.join(output_dir, name))
+    write_atomic(os.path.join(output_dir, RUN_INFO), json.dumps(info, indent=1))
+    return list(frames) + [RUN_INFO]
+
+
 # ---------------------------------------------------------------------------- figures
 
 def _numeric(s):
     return pd.to_numeric(s, errors="coerce")
 
 
-def plot_all_profiles(rows, *, time, conc, by, conc_unit="", time_unit="", color_by=None):
+def _numeric_or_text(s):
+    """A column as numbers when every value reads as one (for ordering), else as text."""
+    num = pd.to_numeric(s, errors="coerce")
+    return num if num.notna().all() else s.astype(str)
+
+
+def plot_all_profiles(rows, *, time, conc, by, conc_unit="", time_unit="", color_by=None, group_units=None):
     """All profiles on one figure, linear and semi-log side by side.
 
     Parameters
@@ -122,8 +407,12 @@ def plot_all_profiles(rows, *, time, conc, by, conc_unit="", time_unit="", color
         Column names.
     by : list of str
         Profile key columns (one line per profile).
-    color_by : str, optional
-        Column whose values share a colour (e.g. the dose group).
+    color_by : str or list of str, optional
+        Column(s) whose values share a colour (e.g. the dose group); groups
+        are ordered by value (10 before 100) and labelled as in
+        :func:`group_labels`.
+    group_units : dict, optional
+        Column -> unit for the legend (the dose column -> ``"mg"``).
 
     Returns
     -------
@@ -134,8 +423,12 @@ def plot_all_profiles(rows, *, time, conc, by, conc_unit="", time_unit="", color
     fig, axes = plt.subplots(1, 2, figsize=(11, 4), gridspec_kw=_GRID)
     d = pd.DataFrame({"t": _numeric(rows[time]), "c": _numeric(rows[conc])})
     keys = rows[by].astype(str).agg(" ".join, axis=1)
-    groups = rows[color_by].astype(str) if color_by else pd.Series([""] * len(rows), index=rows.index)
-    palette = {g: f"C{i % 10}" for i, g in enumerate(sorted(groups.unique()))}
+    color_by = [color_by] if isinstance(color_by, str) else list(color_by or [])
+    groups = group_labels(rows, color_by, group_units) if color_by else pd.Series("", index=rows.index)
+    order = rows[color_by].apply(_numeric_or_text) if color_by else pd.DataFrame(index=rows.index)
+    ordered = (pd.concat([order, groups.rename("__label__")], axis=1).drop_duplicates("__label__")
+               .sort_values(color_by, na_position="last")["__label__"] if color_by else pd.Series([""]))
+    palette = {g: f"C{i % 10}" for i, g in enumerate(ordered)}
     for ax, log in zip(axes, (False, True)):
         for k in keys.unique():
             m = (keys == k).to_numpy()
@@ -149,7 +442,7 @@ def plot_all_profiles(rows, *, time, conc, by, conc_unit="", time_unit="", color
         ax.set_title("semi-log" if log else "linear")
     if color_by:
         handles = [plt.Line2D([], [], color=c, marker="o", lw=1) for c in palette.values()]
-        axes[0].legend(handles, [f"{color_by} {g}" for g in palette], fontsize=8)
+        axes[0].legend(handles, list(palette), fontsize=8)
     return fig
 
 
@@ -206,7 +499,7 @@ def plot_profile(table, index, *, time, conc, conc_unit="", time_unit=""):
     return fig
 
 
-def plot_mean_profiles(means, *, group_by, time_unit="", conc_unit=""):
+def plot_mean_profiles(means, *, group_by, time_unit="", conc_unit="", group_units=None):
     """Mean ± SD concentration by group, linear and semi-log.
 
     On the semi-log panel only the upper bar (mean + SD) is drawn, since
@@ -217,7 +510,9 @@ def plot_mean_profiles(means, *, group_by, time_unit="", conc_unit=""):
     means : DataFrame
         From :func:`pkwidgets.summary.mean_profiles`: group columns, ``time``,
         ``n``, ``mean``, ``sd``.
-    group_by : list of str
+    group_by : list of str or None
+    group_units : dict, optional
+        Column -> unit for the legend (the dose column -> ``"mg"``).
 
     Returns
     -------
@@ -226,7 +521,8 @@ def plot_mean_profiles(means, *, group_by, time_unit="", conc_unit=""):
     import matplotlib.pyplot as plt
 
     fig, axes = plt.subplots(1, 2, figsize=(11, 4), gridspec_kw=_GRID)
-    labels = means[group_by].astype(str).agg(", ".join, axis=1) if group_by else pd.Series("all", index=means.index)
+    group_by = [group_by] if isinstance(group_by, str) else list(group_by or [])
+    labels = group_labels(means, group_by, group_units)
     for i, g in enumerate(dict.fromkeys(labels)):
         m = means[(labels == g).to_numpy()]
         for ax, log in zip(axes, (False, True)):
@@ -235,7 +531,7 @@ def plot_mean_profiles(means, *, group_by, time_unit="", conc_unit=""):
             mu = m["mean"].to_numpy()[keep]
             lower = np.zeros_like(sd) if log else sd  # semi-log: upper bar only (a lower bar can cross 0)
             ax.errorbar(m["time"].to_numpy()[keep], mu, yerr=[lower, sd], fmt="-o", ms=3, lw=1, capsize=2,
-                        color=f"C{i % 10}", label=f"{', '.join(group_by)} {g}" if group_by else g)
+                        color=f"C{i % 10}", label=g)
     for ax, log in zip(axes, (False, True)):
         ax.set_yscale("log" if log else "linear")
         ax.set_xlabel(f"Time ({time_unit})" if time_unit else "Time")
@@ -258,7 +554,11 @@ _TEMPLATE = r"""{%- extends 'lab/index.html.j2' -%}
 .pkw-header td{padding:2px 8px;vertical-align:top;border-bottom:1px solid #ddd}
 .pkw-header td:first-child{font-weight:bold;white-space:nowrap}
 .pkw-caution{font-weight:bold;color:#7a3b00}
-.pkw-header pre{margin:0;white-space:pre-wrap;font-size:0.85em}
+.pkw-header table.pkw-inner{font-size:1em}
+.pkw-header table.pkw-inner td:first-child{font-weight:normal;font-family:monospace}
+.pkw-header td{word-break:break-word}
+.pkw-header details summary{cursor:pointer;color:#333}
+.pkw-fp{margin:0.3em 0;font-size:0.8em}
 </style>{% endblock extra_css %}
 {%- block body_header -%}
 {{ super() }}
@@ -267,18 +567,55 @@ _TEMPLATE = r"""{%- extends 'lab/index.html.j2' -%}
 """
 
 
+def _cell(value) -> str:
+    """Compact HTML text of one setting: mappings as ``key=value; ...``, lists comma-separated, None as a dash."""
+    if isinstance(value, dict):
+        return "; ".join(f"{html.escape(str(k))}={_cell(v)}" for k, v in value.items()) or "—"
+    if isinstance(value, (list, tuple)):
+        return ", ".join(_cell(v) for v in value) or "—"
+    return "—" if value is None else html.escape(str(value))
+
+
+def _rows_html(mapping: dict) -> str:
+    return "".join(f"<tr><td>{html.escape(str(k))}</td><td>{_cell(v)}</td></tr>" for k, v in mapping.items())
+
+
+def _selections_html(sel) -> str:
+    """Terminal-phase record: path and counts; the profile fingerprints folded in a details element."""
+    if not isinstance(sel, dict):
+        return _cell(sel)
+    fps = list(sel.get("fingerprints") or [])
+    parts = [f"record {_cell(sel.get('path'))}"]
+    parts += [f"{name} {len(sel.get(name) or [])}" for name in ("applied", "stale", "unmatched")]
+    text = "; ".join(parts)
+    for name in ("applied", "stale", "unmatched"):
+        if sel.get(name):
+            text += f"<br>{name}: {_cell(sel[name])}"
+    if fps:
+        items = "".join(f"<li><code>{html.escape(str(f))}</code></li>" for f in fps)
+        text += (f'<details><summary>{len(fps)} profile fingerprints (SHA-256 of each profile\'s rows; full list '
+                 f'also in {RUN_INFO})</summary><ol class="pkw-fp">{items}</ol></details>')
+    return text
+
+
 def _header_html(info: dict) -> str:
-    rows = [
-        ("Analysis", info.get("notebook", "")),
-        ("Data file", info.get("data_file", "")),
-        ("Data SHA-256", info.get("data_sha256", "")),
-        ("pkwidgets version", info.get("pkwidgets_version", "")),
-        ("Run date (UTC)", info.get("date", "")),
-    ]
-    body = "".join(f"<tr><td>{html.escape(k)}</td><td>{html.escape(str(v))}</td></tr>" for k, v in rows)
-    for name in ("parameters", "settings"):
-        text = json.dumps(info.get(name, {}), indent=1, sort_keys=True, default=str)
-        body += f"<tr><td>{name.capitalize()}</td><td><pre>{html.escape(text)}</pre></td></tr>"
+    """Record header: run identity, caution, parameters and settings as compact two-column tables."""
+    ident = {
+        "Analysis": info.get("notebook", ""),
+        "Data file": info.get("data_file", ""),
+        "Data SHA-256": info.get("data_sha256", ""),
+        "pkwidgets version": info.get("pkwidgets_version", ""),
+        "Run date (UTC)": info.get("date", ""),
+    }
+    settings = dict(info.get("settings") or {})
+    sel = settings.pop("selections", None)
+    settings.pop("blq_rules_text", None)  # same as blq_rules
+    body = _rows_html(ident)
+    body += f'<tr><td>Parameters</td><td><table class="pkw-inner">{_rows_html(info.get("parameters") or {})}</table></td></tr>'
+    inner = _rows_html(settings)
+    if sel is not None:
+        inner += f"<tr><td>terminal phase</td><td>{_selections_html(sel)}</td></tr>"
+    body += f'<tr><td>Settings</td><td><table class="pkw-inner">{inner}</table></td></tr>'
     caution = html.escape(info.get("caution", CAUTION))
     return (f'<section class="pkw-header" id="pkw-record-header"><h1>Study record</h1>'
             f'<p class="pkw-caution">{caution}</p><table>{body}</table></section>')
