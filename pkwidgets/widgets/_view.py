@@ -24,7 +24,7 @@ from ..qc import FLAGS, QCThresholds, flag_message
 __all__ = [
     "ROLE_STYLE", "PointView", "ProfileView", "compute_profile", "profile_view", "toggle_time",
     "window_from_brush", "readout_rows", "readout_html", "flag_words", "overview_svg",
-    "needs_review", "key_label", "choice_summary",
+    "needs_review", "key_label", "choice_summary", "fit_interval", "click_action", "record_steps",
 ]
 
 #: Okabe–Ito colours (hex as published) with a marker shape and a legend word per role.
@@ -283,21 +283,92 @@ def overview_svg(labels, times, concs, used, review, current=None, *, columns=8,
     return "".join(out)
 
 
-def click_action(role, t, window, excluded, fit_range):
-    """What a click on a point at time ``t`` does; returns the new (window, excluded).
+def fit_interval(result):
+    """(LAMZLL, LAMZUL) of a one-profile result: the times of the first and last fit point (NaN if no fit)."""
+    return float(result["LAMZLL"][0]), float(result["LAMZUL"][0])
 
-    - a point in the fit is left out (added to ``excluded``);
-    - a point left out by hand is taken back;
-    - any other observation is brought into the fit: the window widens to
-      reach it (from the current fit interval ``fit_range``, or the window).
-    - a BLQ sample cannot enter the fit: nothing changes.
+
+#: Status lines of :func:`click_action` when a click changes nothing.
+CLICK_BLQ = "samples below the LLOQ never enter the λz fit"
+CLICK_NO_FIT = ("no λz fit to widen (too few points after the peak): switch to “drag a window” and drag "
+                "across the terminal points to fit them")
+
+
+def click_action(role, t, window, excluded, fit_range):
+    """What a click on a point at time ``t`` does.
+
+    Parameters
+    ----------
+    role : {"fit", "excluded", "other", "blq"}
+        Role of the clicked point (:func:`profile_view`).
+    t : float
+        Its sampling time.
+    window : (start, end) or None
+        Current window (None: automatic search).
+    excluded : sequence of float
+        Times currently left out by hand.
+    fit_range : (float, float)
+        Current fit interval (:func:`fit_interval`); NaN when there is no fit.
+
+    Returns
+    -------
+    window, excluded, message
+        The new choice and a status line ("" when the click changed the choice):
+
+        - a point in the fit is left out (added to ``excluded``);
+        - a point left out by hand is taken back;
+        - any other observation is brought into the fit: the window widens to
+          reach it (from the window, or else the current fit interval); with
+          no fit and no window there is nothing to widen (message
+          :data:`CLICK_NO_FIT`);
+        - a BLQ sample cannot enter the fit (message :data:`CLICK_BLQ`).
     """
     excluded = [float(x) for x in excluded]
     if role in ("fit", "excluded"):
-        return window, toggle_time(excluded, t)
+        return window, toggle_time(excluded, t), ""
     if role == "other":
         base = window if window is not None else fit_range
         if base is None or not all(math.isfinite(v) for v in base):
-            return window, excluded
-        return (min(float(base[0]), float(t)), max(float(base[1]), float(t))), excluded
-    return window, excluded
+            return window, excluded, CLICK_NO_FIT
+        return (min(float(base[0]), float(t)), max(float(base[1]), float(t))), excluded, ""
+    return window, excluded, CLICK_BLQ
+
+
+def record_steps(previous, fingerprint, window, excluded):
+    """Record entries that take a profile from its recorded selection to the one shown.
+
+    Parameters
+    ----------
+    previous : SelectionState or None
+        Latest recorded state of the profile (:meth:`SelectionRecord.state`).
+    fingerprint : str
+        Fingerprint of the data shown; a recorded state made on other data
+        counts as automatic (the record restarts from automatic too).
+    window : (start, end) or None
+    excluded : list of float
+
+    Returns
+    -------
+    list of tuple
+        ``("reset",)``, ``("window", start, end)`` and ``("exclude", times)``
+        in the order to append them; empty when the recorded selection is
+        already the one shown.  A profile never recorded, shown with the
+        automatic search, gets ``[("reset",)]`` so that the choice to keep
+        the automatic search is recorded with its reason.
+    """
+    fresh = previous is not None and previous.fingerprint == fingerprint
+    prev_window = previous.window if fresh else None
+    prev_excl = previous.exclude if fresh else []
+    excluded = [float(x) for x in excluded]
+    if window is None and not excluded:
+        return [] if fresh and prev_window is None and not prev_excl else [("reset",)]
+    steps = []
+    if window != prev_window:
+        if window is None:
+            steps.append(("reset",))
+            prev_excl = []
+        else:
+            steps.append(("window", float(window[0]), float(window[1])))
+    if excluded != prev_excl:
+        steps.append(("exclude", excluded))
+    return steps

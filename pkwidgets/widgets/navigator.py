@@ -18,7 +18,8 @@ from . import _view as V
 from .picker import TerminalPhasePicker
 from .toggles import MethodToggles
 
-__all__ = ["StudyNavigator", "TABLE_ONLY_OPTIONS"]
+__all__ = ["StudyNavigator", "TABLE_ONLY_OPTIONS", "profile_options", "flags_by_profile", "count_text",
+           "review_order", "step", "jump_options", "recorded_choice"]
 
 #: nca() keywords that describe the table, not the computation of one profile.
 TABLE_ONLY_OPTIONS = ("time", "conc", "dose", "blq", "lloq", "dose_time", "units", "terminal", "exclude",
@@ -53,6 +54,36 @@ def review_order(review, only_review):
     """Indices of the profiles to step through."""
     idx = np.flatnonzero(review) if only_review else np.arange(len(review))
     return [int(i) for i in idx]
+
+
+def jump_options(labels, order, current):
+    """(label, index) pairs of the "go to" list: the profiles in ``order``, or the current one if none."""
+    return [(labels[i], i) for i in order] or [(labels[current], current)]
+
+
+def recorded_choice(state, fingerprint):
+    """Window, excluded times and status line to show for a profile's recorded state.
+
+    Parameters
+    ----------
+    state : SelectionState or None
+        Latest recorded state (:meth:`SelectionRecord.state`).
+    fingerprint : str
+        Fingerprint of the profile's data in this run.
+
+    Returns
+    -------
+    window, excluded, status
+        The recorded choice when it was made on these data; otherwise the
+        automatic search, with a status line saying why (empty when nothing
+        was recorded).
+    """
+    if state is None:
+        return None, [], ""
+    if state.fingerprint != fingerprint:
+        return None, [], "the recorded choice was made on other data: automatic shown; review and record again"
+    return (state.window, state.exclude,
+            f"recorded by {state['author']} ({state['timestamp']}): {state['reason']}")
 
 
 def step(order, current, delta):
@@ -130,21 +161,11 @@ class StudyNavigator(widgets.VBox):
         self.flag_names = flags_by_profile(self.table.qc_flags, self.by, self.profile_keys)
         self.review = [V.needs_review(n) for n in self.flag_names]
 
-    def _used(self):
-        return self.inputs["lambda_z_used"]
-
     # ------------------------------------------------------------- display
     def _show(self, _):
         p = self.index
-        st = self.record.state(self.profile_keys[p])
-        window, excluded, status = None, [], ""
-        if st is not None:
-            fp = self.table.settings["selections"]["fingerprints"][p]
-            if st.fingerprint == fp:
-                window, excluded = st.window, st.exclude
-                status = f"recorded by {st['author']} ({st['timestamp']}): {st['reason']}"
-            else:
-                status = "the recorded choice was made on other data: automatic shown; review and record again"
+        window, excluded, status = recorded_choice(self.record.state(self.profile_keys[p]),
+                                                   self.table.settings["selections"]["fingerprints"][p])
         inp = self.inputs
         self.picker.load(inp["time"][p], inp["conc"][p], blq=inp["blq"][p], lloq=inp["lloq"][p],
                          key=self.profile_keys[p], window=window, excluded=excluded, title=self.labels[p],
@@ -155,33 +176,25 @@ class StudyNavigator(widgets.VBox):
     def _render_overview(self):
         order = review_order(self.review, self.only_review)
         self._count.value = count_text(len(order), len(self.profile_keys), self.review)
-        used = self._overview_used if hasattr(self, "_overview_used") else self._refresh_used()
         self.overview.value = V.overview_svg(self.labels, list(self.inputs["time"]), list(self.inputs["conc"]),
-                                             list(used), self.review, current=self.index)
-
-    def _refresh_used(self):
-        self._overview_used = self._used()
-        return self._overview_used
+                                             list(self.inputs["lambda_z_used"]), self.review, current=self.index)
 
     def _step(self, delta):
         self.index = step(review_order(self.review, self.only_review), self.index, delta)
 
     def _filter_changed(self, _):
         order = review_order(self.review, self.only_review)
-        labels = [(self.labels[i], i) for i in order] or [(self.labels[self.index], self.index)]
         cur = self.index if self.index in order or not order else order[0]
         with self._jump.hold_trait_notifications():
-            self._jump.options = labels
+            self._jump.options = jump_options(self.labels, order, cur)
             self._jump.value = cur
         self.index = cur
         self._render_overview()
 
     def _methods_changed(self, _):
         self._run()
-        self._refresh_used()
         self._show(None)
 
     def _saved(self, _):
         self._run()
-        self._refresh_used()
         self._render_overview()

@@ -183,13 +183,12 @@ class TerminalPhasePicker(widgets.VBox):
 
     def _make_click(self, role):
         def clicked(_mark, event):
-            i = event["data"]["index"]
-            t = self.view.points[role]["x"][i]
-            if role == "blq":
-                self.status = "samples below the LLOQ never enter the λz fit"
+            t = self.view.points[role]["x"][event["data"]["index"]]
+            window, excluded, message = V.click_action(role, t, self.window, self.excluded,
+                                                       V.fit_interval(self.result))
+            if message:
+                self.status = message
                 return
-            fit_range = (float(self.result["LAMZLL"][0]), float(self.result["LAMZUL"][0]))
-            window, excluded = V.click_action(role, t, self.window, self.excluded, fit_range)
             with self.hold_trait_notifications():
                 self.window, self.excluded = window, excluded
         return clicked
@@ -232,31 +231,45 @@ class TerminalPhasePicker(widgets.VBox):
     def save(self, reason, author=None) -> str:
         """Append the current choice to the record (and write its file, if it has one).
 
-        Returns the message shown to the user.  Raises ``ValueError`` for an
-        empty reason or when no record is attached.
+        Parameters
+        ----------
+        reason : str
+            Why the choice was made (required, non-empty).
+        author : str, optional
+            Overrides the picker's ``author`` (default: the USER environment variable).
+
+        Returns
+        -------
+        str
+            The message shown to the user.  When the record already holds the
+            choice shown (same data), nothing is appended and the message says so.
+
+        Raises
+        ------
+        ValueError
+            For an empty reason, or when no record or no profile key is attached.
         """
         rec: SelectionRecord = self.record
         if rec is None:
             raise ValueError("no selection record attached: pass record= (or selections= to the navigator).")
+        if self.key is None:
+            raise ValueError("no profile key: pass key= (e.g. the subject) so the record can name the profile.")
         if not reason or not reason.strip():
             raise ValueError("write a short reason before recording the choice.")
         author = author or self.author
-        kw = {"fingerprint": self.fingerprint}
         prev = rec.state(self.key)
-        fresh = prev is not None and prev.fingerprint == self.fingerprint
-        prev_window = prev.window if fresh else None
-        prev_excl = prev.exclude if fresh else []
-        if self.window is None and not self.excluded:
-            rec.reset(self.key, reason, author, **kw)
-        else:
-            if self.window != prev_window:
-                if self.window is None:
-                    rec.reset(self.key, reason, author, **kw)
-                    prev_excl = []
-                else:
-                    rec.set_window(self.key, self.window[0], self.window[1], reason, author, **kw)
-            if list(self.excluded) != prev_excl:
-                rec.set_exclusions(self.key, self.excluded, reason, author, **kw)
+        steps = V.record_steps(prev, self.fingerprint, self.window, self.excluded)
+        if not steps:
+            return (f"already recorded by {prev['author']} ({prev['timestamp']}): "
+                    f"{V.choice_summary(self.window, self.excluded)}; nothing added")
+        kw = {"fingerprint": self.fingerprint}
+        for action, *args in steps:
+            if action == "reset":
+                rec.reset(self.key, reason, author, **kw)
+            elif action == "window":
+                rec.set_window(self.key, args[0], args[1], reason, author, **kw)
+            else:
+                rec.set_exclusions(self.key, args[0], reason, author, **kw)
         where = ""
         if rec.path is not None:
             rec.save()
