@@ -255,7 +255,7 @@ def display_defaults() -> None:
 
     plt.rcParams["figure.dpi"] = 72
     for name, value in (("display.precision", 4), ("display.max_rows", 300), ("display.max_columns", 80),
-                        ("display.width", 200)):
+                        ("display.width", 200), ("display.max_colwidth", None)):  # reasons in full
         pd.set_option(name, value)
 
 
