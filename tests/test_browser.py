@@ -4,79 +4,32 @@ Sources for the checks:
 - the fixture profile is invented (clearly synthetic one-compartment oral curve, tests/browser/);
 - expected λz after leaving a point out: the negative slope of ``scipy.stats.linregress`` on
   ln(conc) of the remaining fit points (ordinary least squares; reference library);
-- how to drive Voilà and Chromium here: /work/shared/STACK.md (measured on these machines).
+- how to drive Voilà and Chromium here: /work/shared/STACK.md (measured on these machines;
+  server start/stop in tests/_voila.py).
 """
 
 import os
 import shutil
-import signal
-import socket
-import subprocess
-import sys
-import time
 from pathlib import Path
 
 import pytest
+
+from _voila import CHROMIUM, CHROMIUM_ARGS as ARGS, voila_server
 
 pytestmark = pytest.mark.browser
 
 HERE = Path(__file__).parent
 OUT = HERE / "_output"
-CHROMIUM = "/usr/bin/chromium"
-ARGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
-        "--disable-background-networking", "--disable-component-update", "--disable-sync"]
-
-
-def _free_port():
-    with socket.socket() as s:
-        s.bind(("127.0.0.1", 0))
-        return s.getsockname()[1]
-
-
-def _wait_port(port, proc, timeout=60):
-    # TCP connect only: an HTTP GET would start an extra kernel (STACK.md)
-    end = time.monotonic() + timeout
-    while time.monotonic() < end:
-        if proc.poll() is not None:
-            raise RuntimeError(f"voila exited early with code {proc.returncode}")
-        try:
-            with socket.create_connection(("127.0.0.1", port), timeout=0.5):
-                return
-        except OSError:
-            time.sleep(0.2)
-    raise RuntimeError(f"voila did not open port {port} within {timeout} s")
 
 
 def _serve(tmp_path_factory, notebook):
     if not os.path.exists(CHROMIUM):
         pytest.skip("Debian chromium not installed (make test installs it)")
     pytest.importorskip("playwright.sync_api")
-    home = tmp_path_factory.mktemp("jupyter")
     nb_dir = tmp_path_factory.mktemp("nb")
     shutil.copy(HERE / "browser" / notebook, nb_dir / notebook)
-    env = dict(os.environ)
-    for var, sub in (("JUPYTER_CONFIG_DIR", "config"), ("JUPYTER_RUNTIME_DIR", "runtime"),
-                     ("JUPYTERLAB_WORKSPACES_DIR", "ws"), ("IPYTHONDIR", "ipython"),
-                     ("JUPYTER_DATA_DIR", "data")):
-        env[var] = str(home / sub)
-    env["JUPYTER_PATH"] = str(Path(sys.prefix) / "share" / "jupyter")
-    port = _free_port()
-    token = "pkwtest"
-    log = open(home / "voila.log", "w")
-    proc = subprocess.Popen(
-        [sys.executable, "-m", "voila", str(nb_dir / notebook), "--no-browser",
-         "--Voila.ip=127.0.0.1", f"--port={port}", f"--token={token}"],
-        cwd=nb_dir, env=env, stdout=log, stderr=subprocess.STDOUT, start_new_session=True)
-    try:
-        _wait_port(port, proc)
-        yield f"http://127.0.0.1:{port}/?token={token}"
-    finally:
-        try:
-            os.killpg(proc.pid, signal.SIGTERM)
-            proc.wait(timeout=15)
-        except (ProcessLookupError, subprocess.TimeoutExpired):
-            os.killpg(proc.pid, signal.SIGKILL)
-        log.close()
+    with voila_server(nb_dir / notebook, tmp_path_factory.mktemp("jupyter")) as url:
+        yield url
 
 
 @pytest.fixture(scope="module")

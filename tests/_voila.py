@@ -1,0 +1,89 @@
+"""Start and stop a local Voilà server for one notebook (browser tests and bench/widget_speed.py).
+
+How to drive Voilà here is in /work/shared/STACK.md (measured on these machines): bind to 127.0.0.1,
+wait for the port with a TCP connect (an HTTP GET would start an extra kernel), keep Jupyter state
+out of $HOME, start the server with a recorded process group and stop it in ``finally``.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import os
+import signal
+import socket
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+CHROMIUM = "/usr/bin/chromium"
+CHROMIUM_ARGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
+                 "--disable-background-networking", "--disable-component-update", "--disable-sync"]
+_JUPYTER_DIRS = (("JUPYTER_CONFIG_DIR", "config"), ("JUPYTER_RUNTIME_DIR", "runtime"),
+                 ("JUPYTERLAB_WORKSPACES_DIR", "ws"), ("IPYTHONDIR", "ipython"), ("JUPYTER_DATA_DIR", "data"))
+
+
+def free_port() -> int:
+    """A TCP port on 127.0.0.1 that is free now."""
+    with socket.socket() as s:
+        s.bind(("127.0.0.1", 0))
+        return s.getsockname()[1]
+
+
+def _wait_port(port, proc, log_path, timeout):
+    end = time.monotonic() + timeout
+    while time.monotonic() < end:
+        if proc.poll() is not None:
+            raise RuntimeError(f"voila exited early with code {proc.returncode}; see {log_path}")
+        try:
+            with socket.create_connection(("127.0.0.1", port), timeout=0.5):
+                return
+        except OSError:
+            time.sleep(0.2)
+    raise RuntimeError(f"voila did not open port {port} within {timeout} s; see {log_path}")
+
+
+@contextlib.contextmanager
+def voila_server(notebook, state_dir, *, token="pkwtest", timeout=60):
+    """Serve ``notebook`` with Voilà on 127.0.0.1; yield the page URL; stop the server on exit.
+
+    Parameters
+    ----------
+    notebook : path
+        The notebook to serve (its folder is the server's working folder).
+    state_dir : path
+        Empty folder for the Jupyter config, runtime and data folders and ``voila.log``.
+    token : str
+        Access token put in the URL.
+    timeout : float
+        Seconds to wait for the port to open.
+
+    Raises
+    ------
+    RuntimeError
+        If the server exits or does not open its port in time (the message names the log file).
+    """
+    notebook, state_dir = Path(notebook), Path(state_dir)
+    env = dict(os.environ)
+    for var, sub in _JUPYTER_DIRS:
+        env[var] = str(state_dir / sub)
+    env["JUPYTER_PATH"] = str(Path(sys.prefix) / "share" / "jupyter")
+    port = free_port()
+    log_path = state_dir / "voila.log"
+    with open(log_path, "w") as log:
+        proc = subprocess.Popen(
+            [sys.executable, "-m", "voila", str(notebook), "--no-browser", "--Voila.ip=127.0.0.1",
+             f"--port={port}", f"--token={token}"],
+            cwd=notebook.parent, env=env, stdout=log, stderr=subprocess.STDOUT, start_new_session=True)
+        try:
+            _wait_port(port, proc, log_path, timeout)
+            yield f"http://127.0.0.1:{port}/?token={token}"
+        finally:
+            try:
+                os.killpg(proc.pid, signal.SIGTERM)
+                proc.wait(timeout=15)
+            except ProcessLookupError:
+                pass
+            except subprocess.TimeoutExpired:
+                os.killpg(proc.pid, signal.SIGKILL)
+                proc.wait(timeout=15)
