@@ -458,7 +458,16 @@ def _chunk(t, c, blq, lloq, excl, dose, dur, tau, lo, hi, parts, o):  # noqa: C9
 
     # 2. dose-time point ------------------------------------------------------
     at0 = usable & (t == 0)
-    ctrough = np.where(at0.any(axis=0), np.max(np.where(at0, value, -np.inf), axis=0), np.nan)
+    has0 = at0.any(axis=0)
+    # the pre-dose concentration: the sample at dose time, else the latest sample
+    # before the dose (a BLQ one read by the 'before' rule)
+    before_blq = before_dose & blq
+    pre_vals = np.where(before_blq, _rule_value(o.rules.before, lloq, before_blq, "before"), c)
+    pre = before_dose & ~np.isnan(pre_vals)
+    i_pre = np.argmax(np.where(pre, t, -np.inf), axis=0)
+    has_pre = pre.any(axis=0)
+    ctrough = np.where(has0, np.max(np.where(at0, value, -np.inf), axis=0),
+                       np.where(has_pre, _pick(pre_vals, i_pre), np.nan))
     with np.errstate(invalid="ignore"):
         in_tau = usable & (t <= tau)
     cmin_tau = np.min(np.where(in_tau, value, np.inf), axis=0)
@@ -471,10 +480,16 @@ def _chunk(t, c, blq, lloq, excl, dose, dur, tau, lo, hi, parts, o):  # noqa: C9
         flags["c0_extrapolated"] = declining
         flags["c0_first_observed"] = ~declining & ~np.isnan(c0)
     else:
-        need0 = ~at0.any(axis=0)
-        c0 = np.where(is_ss, cmin_tau, 0.0)
+        need0 = ~has0
+        # steady state: the pre-dose sample stands at dose time, else CMIN of the interval
+        shifted = need0 & is_ss & has_pre
+        c0 = np.where(is_ss, np.where(shifted, ctrough, cmin_tau), 0.0)
+        cmin_tau = np.where(shifted, np.fmin(cmin_tau, ctrough), cmin_tau)
         flags["time0_added"] = need0 & ~is_ss
-        flags["predose_imputed"] = need0 & is_ss
+        flags["predose_shifted"] = shifted
+        flags["predose_imputed"] = need0 & is_ss & ~has_pre
+        cols_p = np.flatnonzero(shifted)
+        status[i_pre[cols_p], cols_p] = S.USED
 
     # 3. sort, compact --------------------------------------------------------
     T = np.concatenate([np.zeros((1, P)), t], axis=0)

@@ -60,6 +60,7 @@ FLAGS: dict[str, tuple[str, str]] = {
     "tau_extrapolated": ("review", "last measurable sample before dose time + tau: AUCTAU extrapolated with lambda z"),
     "partial_extrapolated": ("review", "a partial-AUC end lies after TLST: extrapolated with lambda z"),
     "time0_added": ("info", "no sample at dose time: concentration 0 added at time 0"),
+    "predose_shifted": ("info", "steady state: the pre-dose sample taken before dose time is used as the concentration at time 0"),
     "predose_imputed": ("info", "steady state without a pre-dose sample: CMIN of the interval used at time 0"),
     "c0_extrapolated": ("info", "IV bolus: C0 back-extrapolated log-linearly from the first two samples"),
     "c0_first_observed": ("info", "IV bolus: first two samples do not decline, C0 set to the first observed concentration"),

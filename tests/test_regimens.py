@@ -232,3 +232,31 @@ def test_ema_truncated_auc_0_72():
     exact_24_72 = 50 / k * (np.exp(-k * 24) - np.exp(-k * 72))
     head = pk.partial_auc(t, c, 0, 24, auc_method="lin-up/log-down")
     assert r["AUCINT_0-72"] - head == pytest.approx(exact_24_72, rel=1e-12)
+
+
+def test_predose_sample_before_dose_time_at_steady_state():
+    # Rule of the issue: at steady state a pre-dose concentration is used as the
+    # value at time 0 (not replaced by 0) and the rule is reported.  A pre-dose
+    # sample drawn 0.25 h before the dose must give the same areas as the same
+    # value placed at time 0 (identity of the rule, common practice, no source).
+    t = np.linspace(0, TAU, 49)[1:]
+    c = oral_ss(t)
+    trough = oral_ss(TAU - 0.25)  # superposition: the level 0.25 h before the next dose
+    shifted = pk.nca_profile(np.r_[-0.25, t], np.r_[trough, c], dose=100.0, tau=TAU)
+    at_zero = pk.nca_profile(np.r_[0.0, t], np.r_[trough, c], dose=100.0, tau=TAU)
+    for code in ("AUCTAU", "CTROUGH", "CMIN", "CAVG", "AUCLST"):
+        assert shifted[code] == pytest.approx(at_zero[code], rel=1e-15), code
+    assert "predose_shifted" in shifted.attrs["flags"]
+    assert shifted.attrs["sample_status"][0] == "used"
+
+
+def test_single_dose_predose_before_dose_time_is_checked_not_used():
+    # EMA 2010: a pre-dose concentration above 5 % of Cmax is flagged for review;
+    # the pre-dose sample (t < 0) is not used in the areas, and C(0) = 0 is added.
+    t = np.array([-0.5, 0.5, 1, 2, 4, 8, 12])
+    c = np.array([0.7, 6.0, 10.0, 8.0, 5.0, 2.0, 1.0])
+    r = pk.nca_profile(t, c)
+    assert "predose_high" in r.attrs["flags"]
+    assert r.attrs["sample_status"][0].startswith("sampled before the dose")
+    from scipy.integrate import trapezoid  # reference library
+    assert r["AUCLST"] == pytest.approx(trapezoid(np.r_[0, c[1:]], np.r_[0, t[1:]]), rel=1e-15)
