@@ -60,10 +60,13 @@ class ArrayResult(dict):
         What happened to each input sample (:class:`pkwidgets.qc.SampleStatus`).
     lambda_z_used : ndarray of bool, shape (profiles, samples)
         Input samples used in the lambda-z fit.
+    partial_bounds : dict of str to (ndarray, ndarray)
+        Start and end of each partial-AUC interval, per profile.
     settings : dict
         The options the result was computed with.
     """
 
+    partial_bounds: dict
     flags: dict
     status: np.ndarray
     lambda_z_used: np.ndarray
@@ -318,6 +321,7 @@ def nca_arrays(
     out.flags = flags
     out.status = status
     out.lambda_z_used = used
+    out.partial_bounds = {name: (a, b) for name, a, b in parts}
     out.settings = {
         "route": route,
         "auc_method": auc_method,

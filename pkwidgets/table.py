@@ -25,7 +25,7 @@ from .parameters import PARAMETERS
 from .profile import ordered_codes
 from .record import apply_selections, canonical_key, coerce_record
 from .qc import FLAGS, STATUS_REASONS, QCThresholds, SampleStatus, flag_message
-from .units import StudyUnits
+from .units import StudyUnits, ureg
 
 __all__ = ["nca", "NCATable", "NCARecord"]
 
@@ -106,21 +106,48 @@ class NCATable(pd.DataFrame):
         return self._record.units
 
     def to_long(self) -> pd.DataFrame:
-        """One row per profile and parameter: keys, PPTESTCD, PPTEST, value, unit, method and rules."""
+        """One row per profile and parameter, CDISC-style.
+
+        Columns: the profile keys, PPTESTCD, PPTEST, value, unit, PPSTINT and
+        PPENINT (ISO 8601 durations after the dose, for partial areas, when
+        the time unit is declared), interval_start and interval_end (the same
+        in the study's time unit), auc_method and blq_rules.  Partial areas
+        carry the CDISC code AUCINT with their interval; the wide table's
+        column name is kept in ``interval``.
+        """
         by = self._record.by
         codes = [c for c in self.columns if c not in by]
-        long = pd.DataFrame(self).melt(id_vars=by, value_vars=codes, var_name="PPTESTCD", value_name="value")
-        long["PPTEST"] = [PARAMETERS[c].name if c in PARAMETERS else _partial_name(c) for c in long["PPTESTCD"]]
+        long = pd.DataFrame(self).melt(id_vars=by, value_vars=codes, var_name="PPTESTCD", value_name="value",
+                                       ignore_index=False)
+        profile = long.index.to_numpy()
+        long = long.reset_index(drop=True)
         long["unit"] = long["PPTESTCD"].map(self._record.units).fillna("")
+        start = np.full(len(long), np.nan)
+        end = np.full(len(long), np.nan)
+        for name, (s, e) in self._record.inputs.get("partial", {}).items():
+            m = (long["PPTESTCD"] == name).to_numpy()
+            start[m], end[m] = s[profile[m]], e[profile[m]]
+        is_part = long["PPTESTCD"].str.startswith("AUCINT").to_numpy()
+        long["interval"] = np.where(is_part, long["PPTESTCD"], "")
+        long.loc[is_part, "PPTESTCD"] = "AUCINT"
+        long["PPTEST"] = [PARAMETERS[c].name if c in PARAMETERS else "AUC from T1 to T2" for c in long["PPTESTCD"]]
+        time_unit = (self._record.settings.get("units") or {}).get("time")
+        long["PPSTINT"] = _iso_durations(start, time_unit)
+        long["PPENINT"] = _iso_durations(end, time_unit)
+        long["interval_start"], long["interval_end"] = start, end
         s = self._record.settings
         long["auc_method"] = s["auc_method"]
         long["blq_rules"] = s["blq_rules_text"]
-        return long[by + ["PPTESTCD", "PPTEST", "value", "unit", "auc_method", "blq_rules"]]
+        return long[by + ["PPTESTCD", "PPTEST", "value", "unit", "PPSTINT", "PPENINT", "interval_start",
+                          "interval_end", "interval", "auc_method", "blq_rules"]]
 
 
-def _partial_name(code):
-    a, b = code.split("_", 1)[1].split("-", 1)
-    return f"AUC from T1 to T2 ({a} to {b})"
+def _iso_durations(times, time_unit):
+    """Times after the dose as ISO 8601 durations in hours (``PT1.5H``); "" where NaN or no unit."""
+    if time_unit is None:
+        return [""] * len(times)
+    hours = times * float((1.0 * ureg(time_unit)).to("h").magnitude)
+    return ["" if np.isnan(h) else f"PT{h:.10g}H" for h in hours]
 
 
 def nca(
@@ -351,7 +378,8 @@ def nca(
         profiles=P, rows=n, rows_used=int(rows["used"].sum()), selections=sel,
     )
     out = NCATable(wide)
-    inputs = {"time": T, "conc": C, "blq": B, "lloq": L, "exclude": X, "terminal": term, "dose": dose_p,
+    inputs = {"partial": res.partial_bounds, "time": T, "conc": C, "blq": B, "lloq": L, "exclude": X,
+              "terminal": term, "dose": dose_p,
               "duration": dur_p, "tau": tau_p, "keys": key_texts, "lambda_z_used": res.lambda_z_used}
     out._record = NCARecord(rows=rows, qc_flags=qc_flags, settings=settings, units=unit_map, by=by, inputs=inputs)
     return out

@@ -205,6 +205,28 @@ def test_partial_codes_and_long_output(theoph):
     # CDISC-style long table: one row per profile and parameter
     assert list(long.columns[:5]) == ["Subject", "PPTESTCD", "PPTEST", "value", "unit"]
     assert len(long) == len(res) * (len(res.columns) - 1)
+    # CDISC: a partial area is AUCINT with its interval in PPSTINT/PPENINT as ISO 8601
+    # durations (shared/REFERENCES.md, seen); without a declared time unit they stay empty
+    part = long[long["PPTESTCD"] == "AUCINT"]
+    assert len(part) == len(res) and set(part["interval"]) == {"AUCINT_0-2"}
+    assert (part["interval_start"] == 0).all() and (part["interval_end"] == 2).all()
+    assert (part["PPSTINT"] == "").all()
+
+
+def test_partial_intervals_as_iso_durations(theoph):
+    # CDISC PPSTINT/PPENINT are ISO 8601 durations (shared/REFERENCES.md, seen):
+    # 90 min after the dose is PT1.5H; per-profile ends follow their own profile
+    frame = theoph.assign(Tmin=theoph["Time"] * 60)
+    ends = {s: 60.0 + s for s in range(1, 13)}
+    res = pk.nca(frame, by="Subject", time="Tmin", conc="conc", dose="Dose",
+                 units={"time": "min", "conc": "mg/L", "dose": "mg/kg"},
+                 partial={"AUCINT_early": (0, np.array([ends[s] for s in sorted(ends)]))})
+    long = res[res["Subject"] > 6].to_long()
+    part = long[long["PPTESTCD"] == "AUCINT"].set_index("Subject")
+    assert set(part["PPSTINT"]) == {"PT0H"}
+    for s in range(7, 13):
+        assert part.loc[s, "PPENINT"] == f"PT{(60.0 + s) / 60:.10g}H"
+        assert part.loc[s, "interval_end"] == 60.0 + s
 
 
 def test_table_equals_profile_path(theoph):
