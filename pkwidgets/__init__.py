@@ -8,9 +8,9 @@ from .engine import ArrayResult, nca_arrays
 from .errors import InputDataError, UnitError
 from .parameters import PARAMETERS, parameter_table, partial_code
 from .profile import nca_profile, partial_auc
-from .table import NCARecord, NCATable, nca
 from .qc import FLAGS, QCThresholds
 from .record import SelectionRecord, profile_fingerprint
+from .table import NCARecord, NCATable, nca
 from .units import StudyUnits
 
 __version__ = "0.1.0"
