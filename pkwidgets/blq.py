@@ -30,7 +30,7 @@ BLQ_RULE_VALUES = ("zero", "missing", "half-lloq", "lloq")
 
 #: Text read as "below the limit of quantitation" in a concentration column.
 #: Matching ignores case and surrounding blanks.
-BLQ_MARKERS = ("BLQ", "BQL", "<LLOQ", "<LOQ", "LLOQ", "BLOQ", "ND", "NQ")
+BLQ_MARKERS = ("BLQ", "BQL", "<BLQ", "<BQL", "<LLOQ", "<LOQ", "LLOQ", "BLOQ", "ND", "NQ")
 _LESS_THAN = re.compile(r"^<\s*([0-9]*\.?[0-9]+(?:[eE][-+]?[0-9]+)?)$")
 
 
