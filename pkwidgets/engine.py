@@ -202,6 +202,9 @@ def _parse_partial(partial, P):
             if np.ndim(start) or np.ndim(end):
                 raise ValueError("partial intervals with per-profile ends need names: pass a dict {name: (start, end)}.")
             name = partial_code(float(start), float(end))
+        elif not (isinstance(name, str) and name.startswith("AUCINT")):
+            raise ValueError(f"partial interval name {name!r} must start with 'AUCINT' (e.g. 'AUCINT_early'), "
+                             "the CDISC code of a partial area, so that reports recognise it.")
         if np.any(s < 0) or np.any(~(e > s)):
             raise ValueError(f"partial interval {name}: need 0 <= start < end; got ({start}, {end}).")
         out.append((name, s, e))
@@ -254,7 +257,9 @@ def nca_arrays(
         Lower limit of quantitation; needed by the ``"half-lloq"`` and
         ``"lloq"`` BLQ rules.
     partial : sequence of (start, end) or dict of name -> (start, end)
-        Partial AUC intervals after the dose (see :func:`pkwidgets.partial_auc`).
+        Partial AUC intervals after the dose (see :func:`pkwidgets.partial_auc`);
+        unnamed ones are called ``AUCINT_<start>-<end>``, names given must
+        start with ``AUCINT``.
     blq_rules : BLQRules or dict, optional
     qc : QCThresholds, optional
 

@@ -179,8 +179,9 @@ def test_partial_auc_is_additive(method):
         hi = 1.3 * np.nanmax(T, axis=1)
         cuts = three_cuts(seed, hi)
         a, b, c = cuts.T
-        r = nca_arrays(T, C, auc_method=method, partial={"ac": (a, c), "ab": (a, b), "bc": (b, c)})
-        whole, left, right = r["ac"], r["ab"], r["bc"]
+        r = nca_arrays(T, C, auc_method=method,
+                       partial={"AUCINT_ac": (a, c), "AUCINT_ab": (a, b), "AUCINT_bc": (b, c)})
+        whole, left, right = r["AUCINT_ac"], r["AUCINT_ab"], r["AUCINT_bc"]
         ok = ~np.isnan(whole)
         np.testing.assert_array_equal(ok, ~np.isnan(left + right))
         np.testing.assert_allclose(whole[ok], (left + right)[ok], rtol=1e-9,

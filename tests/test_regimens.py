@@ -260,3 +260,9 @@ def test_single_dose_predose_before_dose_time_is_checked_not_used():
     assert r.attrs["sample_status"][0].startswith("sampled before the dose")
     from scipy.integrate import trapezoid  # reference library
     assert r["AUCLST"] == pytest.approx(trapezoid(np.r_[0, c[1:]], np.r_[0, t[1:]]), rel=1e-15)
+
+
+def test_partial_names_must_be_aucint():
+    # CDISC: a partial area is AUCINT (shared/REFERENCES.md, seen); other names are refused
+    with pytest.raises(ValueError, match="partial interval name 'early' must start with 'AUCINT'"):
+        pk.nca_profile([0, 1, 2], [0, 5, 3], partial={"early": (0, 1)})
