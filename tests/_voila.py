@@ -3,6 +3,8 @@
 How to drive Voilà here is in /work/shared/STACK.md (measured on these machines): bind to 127.0.0.1,
 wait for the port with a TCP connect (an HTTP GET would start an extra kernel), keep Jupyter state
 out of $HOME, start the server with a recorded process group and stop it in ``finally``.
+
+This module is test plumbing and holds no check values, so it names no source for any.
 """
 
 from __future__ import annotations
