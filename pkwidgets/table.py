@@ -81,6 +81,11 @@ class NCATable(pd.DataFrame):
         return NCATable
 
     @property
+    def parameters(self) -> pd.DataFrame:
+        """The parameters as a plain DataFrame (profile keys first, then PPTESTCD codes)."""
+        return pd.DataFrame(self)
+
+    @property
     def record(self) -> NCARecord:
         return self._record
 
