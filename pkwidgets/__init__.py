@@ -10,7 +10,9 @@ from .parameters import PARAMETERS, parameter_table, partial_code
 from .profile import nca_profile, partial_auc
 from .qc import FLAGS, QCThresholds
 from .record import SelectionRecord, profile_fingerprint
-from .table import NCARecord, NCATable, nca
+from .options import ColumnMap, NCAOptions
+from .result import NCAResult, ProfileData, concat_results
+from .table import NCATable, nca
 from .units import StudyUnits
 
 __version__ = "0.1.0"
@@ -20,13 +22,17 @@ __all__ = [
     "BLQRules",
     "FLAGS",
     "InputDataError",
-    "NCARecord",
+    "ColumnMap",
+    "NCAOptions",
+    "NCAResult",
     "NCATable",
     "PARAMETERS",
+    "ProfileData",
     "QCThresholds",
     "SelectionRecord",
     "StudyUnits",
     "UnitError",
+    "concat_results",
     "nca",
     "nca_arrays",
     "nca_profile",

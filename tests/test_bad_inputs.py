@@ -6,7 +6,7 @@ Each case is one parametrised entry with its expected outcome:
   file, line, column or subject; the error must be raised from pkwidgets code
   (not from inside numpy or pandas) so the user never sees a deep traceback;
 - ``Flagged``: the run completes, the named QC flag is raised on the named
-  profile, and the affected rows are listed in ``.rows`` with their reason
+  profile, and the affected rows are listed in ``.samples`` with their reason
   (no row silently dropped).
 
 Sources for the checks:
@@ -222,10 +222,10 @@ REJECTED = [
     Rejected("by-empty", frame(), {"by": []}, ValueError, r"by must name at least one column"),
     Rejected("infusion-without-duration", frame(), {"route": "iv-infusion"}, ValueError,
              r"route 'iv-infusion' needs duration="),
-    Rejected("unknown-route", frame(), {"route": "oral"}, ValueError, r"route must be one of .*got 'oral'"),
+    Rejected("unknown-route", frame(), {"route": "oral"}, ValueError, r"'route' option must be one of .*got 'oral'"),
     Rejected("unknown-auc-method", frame(), {"auc_method": "log"}, ValueError,
-             r"auc_method must be one of .*got 'log'"),
-    Rejected("tau-zero", frame(), {"tau": 0}, ValueError, r"tau must be positive and finite"),
+             r"'auc_method' option must be one of .*got 'log'"),
+    Rejected("tau-zero", frame(), {"tau": 0}, ValueError, r"'tau' option must be a finite number > 0"),
     Rejected("partial-reversed", frame(), {"partial": [(4, 2)]}, ValueError,
              r"partial interval AUCINT_4-2: need 0 <= start < end"),
 ]
@@ -325,20 +325,20 @@ FLAGGED = [
 def test_flagged_and_rows_accounted(case, tmp_path):
     data = _load(case, tmp_path)
     res = nca(data, by="subject", **case.kwargs)
-    raised = set(zip(res.qc_flags["subject"].tolist(), res.qc_flags["flag"].tolist()))
+    raised = set(zip(res.flags["subject"].tolist(), res.flags["flag"].tolist()))
     assert case.flags <= raised, raised
-    rows = res.rows
+    rows = res.samples
     # nothing lost: one account row per input row
     n_input = len(data) if isinstance(data, pd.DataFrame) else len(pd.read_csv(data, dtype=str,
                                                                                    skip_blank_lines=True))
     assert len(rows) == n_input
-    where = "line" if isinstance(data, str) else None
+    where = "nca_line" if isinstance(data, str) else None
     unused = res.unused
-    listed = dict(zip(unused[where] if where else unused.index, unused["reason"]))
+    listed = dict(zip(unused[where] if where else unused.index, unused["nca_reason"]))
     assert set(listed) == set(case.unused), listed
     for ln, reason in case.unused.items():
         assert reason in listed[ln], (ln, listed[ln])
-    assert (rows["reason"].str.len() > 0).all()
+    assert (rows["nca_reason"].str.len() > 0).all()
     if case.check is not None:
         case.check(res)
 
@@ -445,17 +445,16 @@ def test_selection_record_cases(case, tmp_path):
     elif case.outcome == "warns":
         with pytest.warns(UserWarning, match=case.match):
             res = nca(case.data, by="subject", selections=path)
-        pd.testing.assert_frame_equal(pd.DataFrame(res), pd.DataFrame(auto))  # nothing applied
+        pd.testing.assert_frame_equal(res.parameters, auto.parameters)  # nothing applied
     else:
         res = nca(case.data, by="subject", selections=path)
-        flagged = set(res.qc_flags.loc[res.qc_flags["flag"] == "selection_stale", "subject"])
+        flagged = set(res.flags.loc[res.flags["flag"] == "selection_stale", "subject"])
         assert flagged == case.stale
-        manual = set(res.qc_flags.loc[res.qc_flags["flag"] == "manual_terminal", "subject"])
+        manual = set(res.flags.loc[res.flags["flag"] == "manual_terminal", "subject"])
         assert manual == case.applied
         for subject in case.stale:  # stale choices fall back to the automatic search
-            row = res["subject"] == subject
-            pd.testing.assert_frame_equal(pd.DataFrame(res[row]), pd.DataFrame(auto[row]))
+            pd.testing.assert_series_equal(res.profile(subject).parameters, auto.profile(subject).parameters)
         for subject in case.applied:  # a matching choice is applied: the fit starts in the window
-            lamzll = res.loc[res["subject"] == subject, "LAMZLL"].iloc[0]
+            lamzll = res.profile(subject).parameters["LAMZLL"]
             assert 4 <= lamzll
     assert path.read_bytes() == before  # reading a record never changes it

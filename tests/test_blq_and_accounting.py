@@ -83,19 +83,19 @@ def test_text_markers_in_csv_and_every_row_accounted(tmp_path):
         "B,4,1.0,10\n"
     )
     res = pk.nca(path, by="subject", blq_rules={"between": "half-lloq"})
-    rows = res.rows
+    rows = res.samples
     assert len(rows) == 12  # nothing lost: every input row is in the account
-    assert list(rows["line"]) == list(range(2, 14))
+    assert list(rows["nca_line"]) == list(range(2, 14))
     # "<0.50" is BLQ with its LLOQ: between measurable samples -> half-LLOQ = 0.25
-    a = res.loc[res.subject == "A"].iloc[0]
+    a = res.profile("A").parameters
     assert a["AUCLST"] == pytest.approx(
         trapezoid([0, 4, 6, 0.25, 3, 2], [0, 1, 2, 4, 6, 8]), rel=1e-15)
-    unused = res.unused.set_index("line")["reason"]
+    unused = res.unused.set_index("nca_line")["nca_reason"]
     assert unused[8].startswith("after the last measurable concentration")
     assert unused[9] == "no time and no concentration recorded"
     assert unused[12] == "concentration missing"
     assert set(unused.index) == {8, 9, 12}
-    assert rows["used"].sum() + len(unused) == len(rows)
+    assert rows["nca_used"].sum() + len(unused) == len(rows)
 
 
 def test_unknown_marker_names_line_and_column(tmp_path):

@@ -146,7 +146,7 @@ def test_theophylline_against_reference_libraries(theoph):
     for subj, g in theoph.groupby("Subject"):
         g = g.sort_values("Time")
         t, c = g["Time"].to_numpy(), g["conc"].to_numpy()
-        row = res.loc[res["Subject"] == subj].iloc[0]
+        row = res.profile(subj).parameters
         assert row["CMAX"] == c.max()
         assert row["TMAX"] == t[np.argmax(c)]
         # every subject has a time-0 sample: AUCLST by scipy's trapezoid over all samples
@@ -174,7 +174,7 @@ def test_theophylline_predose_flag(theoph):
     # REFERENCES.md: subjects 1, 7 and 10 have a measurable time-0 concentration,
     # subject 1 at 7 % of Cmax; EMA 2010 flags a pre-dose level above 5 % of Cmax.
     res = pk.nca(theoph, by="Subject", time="Time", conc="conc", dose="Dose")
-    flagged = set(res.qc_flags.loc[res.qc_flags["flag"] == "predose_high", "Subject"])
+    flagged = set(res.flags.loc[res.flags["flag"] == "predose_high", "Subject"])
     s1 = theoph[theoph.Subject == 1]
     assert s1["conc"].iloc[0] / s1["conc"].max() == pytest.approx(0.07, abs=0.005)
     assert 1 in flagged
@@ -200,11 +200,11 @@ def test_units_follow_pint(theoph):
 
 def test_partial_codes_and_long_output(theoph):
     res = pk.nca(theoph, by="Subject", time="Time", conc="conc", dose="Dose", partial=[(0, 2)])
-    assert "AUCINT_0-2" in res.columns
+    assert "AUCINT_0-2" in res.parameters.columns
     long = res.to_long()
     # CDISC-style long table: one row per profile and parameter
-    assert list(long.columns[:5]) == ["Subject", "PPTESTCD", "PPTEST", "value", "unit"]
-    assert len(long) == len(res) * (len(res.columns) - 1)
+    assert list(long.columns[:6]) == ["Subject", "profile_id", "PPTESTCD", "PPTEST", "value", "unit"]
+    assert len(long) == len(res.parameters) * len(res.codes)
     # CDISC: a partial area is AUCINT with its interval in PPSTINT/PPENINT as ISO 8601
     # durations (shared/REFERENCES.md, seen); without a declared time unit they stay empty
     part = long[long["PPTESTCD"] == "AUCINT"]
@@ -221,7 +221,7 @@ def test_partial_intervals_as_iso_durations(theoph):
     res = pk.nca(frame, by="Subject", time="Tmin", conc="conc", dose="Dose",
                  units={"time": "min", "conc": "mg/L", "dose": "mg/kg"},
                  partial={"AUCINT_early": (0, np.array([ends[s] for s in sorted(ends)]))})
-    long = res[res["Subject"] > 6].to_long()
+    long = res.to_long(res.parameters[res.parameters["Subject"] > 6])
     part = long[long["PPTESTCD"] == "AUCINT"].set_index("Subject")
     assert set(part["PPSTINT"]) == {"PT0H"}
     for s in range(7, 13):
@@ -235,7 +235,7 @@ def test_table_equals_profile_path(theoph):
     for subj, g in theoph.groupby("Subject"):
         one = pk.nca_profile(g["Time"].to_numpy(), g["conc"].to_numpy(), dose=g["Dose"].iloc[0],
                              auc_method="lin-log")
-        row = res.loc[res["Subject"] == subj].iloc[0]
+        row = res.profile(subj).parameters
         for code, value in one.items():
             assert row[code] == pytest.approx(value, rel=1e-14, nan_ok=True), code
 
@@ -247,7 +247,7 @@ def test_theophylline_remaining_codes(theoph):
     for subj, g in theoph.groupby("Subject"):
         g = g.sort_values("Time")
         t, c = g["Time"].to_numpy(), g["conc"].to_numpy()
-        row = res.loc[res["Subject"] == subj].iloc[0]
+        row = res.profile(subj).parameters
         dose = g["Dose"].iloc[0]
         # every Theoph concentration after dosing is measurable: TLST/CLST are the last sample
         assert row["TLST"] == t[-1] and row["CLST"] == c[-1]

@@ -197,29 +197,30 @@ def test_navigator_steps_filters_and_replays(theoph, tmp_path):
     nav = StudyNavigator(theoph, selections=path, author="analyst", **OPTS)
     auto = nca(theoph, **OPTS)
     review = [bool(x) for x in nav.review]
-    flagged = set(auto.qc_flags.loc[auto.qc_flags["severity"] == "review", "Subject"])
-    assert review == [s in flagged for s in auto["Subject"]]
-    assert float(nav.picker.result["LAMZ"][0]) == pytest.approx(auto["LAMZ"].iloc[0], rel=1e-12)
+    flagged = set(auto.flags.loc[auto.flags["severity"] == "review", "Subject"])
+    assert review == [s in flagged for s in auto.parameters["Subject"]]
+    first = nav.profiles[0].key["Subject"]
+    assert float(nav.picker.result["LAMZ"][0]) == pytest.approx(auto.profile(first).parameters["LAMZ"], rel=1e-12)
     nav._next.click()
     assert nav.index == 1 and "Subject 2" in nav.picker.figure.title
     nav.only_review = True
     assert nav.index == review_order(review, True)[0]
     # choose a window on the shown subject, record it, and replay without widgets
-    shown = auto["Subject"].iloc[nav.index]
+    shown = nav.profiles[nav.index].key["Subject"]
     sub = theoph[theoph["Subject"] == shown]
     nav.picker.window = (float(sub["Time"].iloc[-5]), float(sub["Time"].iloc[-1]))
     nav.picker._reason.value = "fit the last five samples"
     nav.picker._save.click()
     replay = nca(theoph, **OPTS, selections=path)
-    row = replay.loc[replay["Subject"] == shown].iloc[0]
+    row = replay.profile(shown).parameters
     ref = scipy.stats.linregress(sub["Time"].iloc[-5:], np.log(sub["conc"].iloc[-5:]))
     assert row["LAMZ"] == pytest.approx(-ref.slope, rel=1e-10)
     assert float(nav.picker.result["LAMZ"][0]) == row["LAMZ"]
-    assert float(nav.table.loc[nav.table["Subject"] == shown, "LAMZ"].iloc[0]) == row["LAMZ"]
+    assert float(nav.result.profile(shown).parameters["LAMZ"]) == row["LAMZ"]
     # the method toggle reaches the whole study
     nav.toggles._auc.value = "lin-up/log-down"
     ref_tab = nca(theoph, **OPTS, auc_method="lin-up/log-down", selections=path)
-    np.testing.assert_array_equal(nav.table["AUCLST"].to_numpy(), ref_tab["AUCLST"].to_numpy())
+    np.testing.assert_array_equal(nav.result.parameters["AUCLST"].to_numpy(), ref_tab.parameters["AUCLST"].to_numpy())
     assert "needs review" in nav.overview.value or not any(review)
 
 
@@ -262,13 +263,13 @@ def test_48_subject_study_replays_from_record(tmp_path):
     replay = nca(csv, by="subject", auc_method="lin-up/log-down", selections=rec_path)
     assert replay.settings["selections"]["stale"] == []
     assert len(replay.settings["selections"]["applied"]) == 48
-    for _, row in replay.iterrows():
+    for _, row in replay.parameters.iterrows():
         for code, value in shown[row["subject"]].items():
             assert row[code] == value, (row["subject"], code)
     sub = study[study["subject"] == "SYN-02"]
     sel = sub["time"] >= 6
     ref = scipy.stats.linregress(sub.loc[sel, "time"], np.log(sub.loc[sel, "conc"]))
-    assert replay.loc[replay["subject"] == "SYN-02", "LAMZ"].iloc[0] == pytest.approx(-ref.slope, rel=1e-10)
+    assert replay.profile("SYN-02").parameters["LAMZ"] == pytest.approx(-ref.slope, rel=1e-10)
 
 
 def test_all_blq_profile_is_drawn_at_lloq_and_flagged():

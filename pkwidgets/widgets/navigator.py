@@ -26,23 +26,22 @@ TABLE_ONLY_OPTIONS = ("time", "conc", "dose", "blq", "lloq", "dose_time", "units
                       "duration", "tau", "sep", "decimal", "encoding", "occasion")
 
 
-def profile_options(nca_options, inputs, p):
-    """Keywords of :func:`pkwidgets.nca_arrays` for profile ``p`` of a run's ``inputs``."""
+def profile_options(nca_options, profile):
+    """Keywords of :func:`pkwidgets.nca_arrays` for one profile (a :class:`pkwidgets.ProfileData`)."""
     opts = {k: v for k, v in nca_options.items() if k not in TABLE_ONLY_OPTIONS}
     for name in ("dose", "duration", "tau"):
-        arr = inputs.get(name)
-        if arr is not None:
-            opts[name] = float(np.asarray(arr)[p])
+        value = getattr(profile, name)
+        if value is not None and not np.isnan(value):
+            opts[name] = value
     return opts
 
 
-def flags_by_profile(qc_flags, by, keys):
-    """List of raised flag names per profile, in the order of ``keys`` (canonical key tuples)."""
-    names = [[] for _ in keys]
-    pos = {k: i for i, k in enumerate(keys)}
-    for row in qc_flags[list(by) + ["flag"]].itertuples(index=False):
-        names[pos[canonical_key(tuple(row[:-1]))]].append(row[-1])
-    return names
+def flags_by_profile(flags, profile_ids):
+    """List of raised flag names per profile, in the order of ``profile_ids`` (looked up by id)."""
+    names = {int(p): [] for p in profile_ids}
+    for pid, flag in flags[["profile_id", "flag"]].itertuples(index=False):
+        names[int(pid)].append(flag)
+    return [names[int(p)] for p in profile_ids]
 
 
 def count_text(n_shown, n_total, review):
@@ -155,29 +154,31 @@ class StudyNavigator(widgets.VBox):
     # ------------------------------------------------------------ analysis
     def _run(self):
         opts = dict(self._nca_options, **self.toggles.options)
-        self.table = nca(self._data, by=self.by, selections=self.record, **opts)
-        self.inputs = self.table.record.inputs
-        self.profile_keys = self.inputs["keys"]
-        self.flag_names = flags_by_profile(self.table.qc_flags, self.by, self.profile_keys)
+        self.result = nca(self._data, by=self.by, selections=self.record, **opts)
+        self.profile_ids = [int(p) for p in self.result.parameters["profile_id"]]
+        self.profiles = [self.result.profile(profile_id=p) for p in self.profile_ids]
+        self.profile_keys = [canonical_key(tuple(p.key.values())) for p in self.profiles]
+        self.flag_names = flags_by_profile(self.result.flags, self.profile_ids)
         self.review = [V.needs_review(n) for n in self.flag_names]
 
     # ------------------------------------------------------------- display
     def _show(self, _):
         p = self.index
+        prof = self.profiles[p]
+        row = int(self.result.arrays.rows_of([prof.profile_id])[0])
         window, excluded, status = recorded_choice(self.record.state(self.profile_keys[p]),
-                                                   self.table.settings["selections"]["fingerprints"][p])
-        inp = self.inputs
-        self.picker.load(inp["time"][p], inp["conc"][p], blq=inp["blq"][p], lloq=inp["lloq"][p],
+                                                   self.result.settings["selections"]["fingerprints"][row])
+        self.picker.load(prof.time, prof.conc, blq=prof.blq, lloq=prof.lloq,
                          key=self.profile_keys[p], window=window, excluded=excluded, title=self.labels[p],
-                         status=status, **profile_options(dict(self._nca_options, **self.toggles.options),
-                                                          inp, p))
+                         status=status, **profile_options(dict(self._nca_options, **self.toggles.options), prof))
         self._render_overview()
 
     def _render_overview(self):
         order = review_order(self.review, self.only_review)
         self._count.value = count_text(len(order), len(self.profile_keys), self.review)
-        self.overview.value = V.overview_svg(self.labels, list(self.inputs["time"]), list(self.inputs["conc"]),
-                                             list(self.inputs["lambda_z_used"]), self.review, current=self.index)
+        self.overview.value = V.overview_svg(self.labels, [p.time for p in self.profiles],
+                                             [p.conc for p in self.profiles],
+                                             [p.lambda_z_used for p in self.profiles], self.review, current=self.index)
 
     def _step(self, delta):
         self.index = step(review_order(self.review, self.only_review), self.index, delta)
