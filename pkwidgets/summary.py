@@ -152,24 +152,25 @@ def summarize(table, *, by=None, parameters=None, units=None) -> pd.DataFrame:
     return res
 
 
-def with_groups(table, group_by) -> pd.DataFrame:
-    """Parameters with grouping columns taken from each profile's input rows.
+def with_groups(result, group_by) -> pd.DataFrame:
+    """Parameters with grouping columns taken from each profile's input rows, joined by ``profile_id``.
 
     Parameters
     ----------
-    table : NCATable
-        Result of :func:`pkwidgets.nca` (its ``rows`` give the group values).
+    result : NCAResult
+        Result of :func:`pkwidgets.nca` (its ``samples`` give the group values).
     group_by : list of str
         Input columns to attach (e.g. the dose level); columns already in the
-        table are kept as they are.
+        parameters are kept as they are.
 
     Returns
     -------
     pandas.DataFrame
-        The table with the group columns inserted after the profile keys.
-        A profile's group value is that of its first row; a column whose
-        values all read as numbers becomes numeric (so 10 sorts before 100),
-        and integer-valued (``10`` rather than ``10.0``) when every value is whole.
+        ``result.parameters`` with the group columns inserted after the
+        profile keys.  A profile's group value is that of its first row; a
+        column whose values all read as numbers becomes numeric (so 10 sorts
+        before 100), and integer-valued (``10`` rather than ``10.0``) when
+        every value is whole.
 
     Raises
     ------
@@ -178,19 +179,20 @@ def with_groups(table, group_by) -> pd.DataFrame:
         data file and its columns).
     """
     group_by = [group_by] if isinstance(group_by, str) else list(group_by or [])
-    out = pd.DataFrame(table).copy()
-    rows = table.rows
+    out = result.parameters.copy()
+    rows = result.samples
     missing = [g for g in group_by if g not in out.columns and g not in rows.columns]
     if missing:
-        source = table.settings.get("source") or "the data"
-        data_cols = [c for c in rows.columns if c not in ("profile", "used", "lambda_z", "reason")]
+        source = result.settings.get("source") or "the data"
+        data_cols = [c for c in rows.columns if not str(c).startswith("nca_")]
         raise KeyError(f"group_by column(s) {missing} are neither profile keys nor columns of {source}; its columns "
                        f"are {data_cols}. Set group_by to some of these, or [] for one summary over all profiles.")
-    first = rows[rows["profile"] >= 0].groupby("profile", sort=True).first()
-    pos = len(table.record.by)
+    placed = rows[rows["nca_profile_id"] >= 0]
+    first = placed.groupby("nca_profile_id", sort=False).first()
+    pos = len(result.by)
     for g in group_by:
         if g not in out.columns:
-            col = first[g].reindex(range(len(out)))
+            col = first[g].reindex(out["profile_id"].to_numpy())
             out.insert(pos, g, _as_numbers(col).to_numpy())
             pos += 1
     return out
