@@ -17,6 +17,7 @@ import pandas as pd
 from .blq import BLQ_MARKERS, parse_concentrations
 from .errors import InputDataError
 from .io import LINE, read_study_csv, wrong_delimiter_hint
+from .keys import canonical_keys, spelling_notes
 
 __all__ = ["TableSource", "key_of", "terminal_windows"]
 
@@ -166,23 +167,33 @@ class TableSource:
         return t
 
     def profiles(self, by, keep):
+        """Profile id of every row (-1 where not kept), by the key rule of :mod:`pkwidgets.keys`.
+
+        Returns the ids, the key table (one row per id, values under the key
+        rule) and the notes on merged or case-only spellings.
+        """
         for col in by:
             miss = self.frame[col].isna().to_numpy() | (self._text(col) == "").to_numpy()
             if (miss & keep).any():
                 i = int(np.flatnonzero(miss & keep)[0])
                 raise InputDataError(f"{self.at(i, col)}: profile key is empty; every sample needs a {col!r}.",
                                      file=self.file, line=self.line(i), column=col)
-        sub = self.frame.loc[keep, by]
+        canon = pd.DataFrame({col: canonical_keys(self.frame[col]) for col in by}, index=self.frame.index)
+        notes = [n for col in by for n in spelling_notes(self.frame[col][keep], canon[col][keep], col,
+                                                         lambda j: self.where_row(int(np.flatnonzero(keep)[j])))]
         prof = np.full(len(self.frame), -1, dtype=np.int64)
-        prof[keep] = sub.groupby(by, sort=True, dropna=False).ngroup().to_numpy()
-        return prof
-
-    def keys(self, by, prof, P):
+        prof[keep] = canon.loc[keep].groupby(by, sort=True, dropna=False).ngroup().to_numpy()
+        P = int(prof.max()) + 1 if keep.any() else 0
         first = np.full(P, -1, dtype=np.int64)
         valid = np.flatnonzero(prof >= 0)
-        first_pos = np.unique(prof[valid], return_index=True)[1]
-        first[:] = valid[first_pos]
-        return self.frame[by].iloc[first].reset_index(drop=True)
+        first[:] = valid[np.unique(prof[valid], return_index=True)[1]]
+        keys = canon.iloc[first].reset_index(drop=True)
+        for col in by:
+            if all(isinstance(v, (int, np.integer)) for v in keys[col]):
+                keys[col] = keys[col].astype(np.int64)
+            elif all(isinstance(v, (float, np.floating)) for v in keys[col]):
+                keys[col] = keys[col].astype(np.float64)
+        return prof, keys, notes
 
     def per_profile(self, value, prof, P, name, decimal):
         if not isinstance(value, str):

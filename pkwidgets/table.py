@@ -22,6 +22,7 @@ from .columns import TableSource, terminal_windows
 from .engine import SampleValueError, nca_arrays
 from .errors import InputDataError
 from .options import ColumnMap, NCAOptions, build_options
+from .keys import check_separating_columns
 from .padding import ProfilePadding
 from .profile import ordered_codes
 from .qc import FLAGS, STATUS_REASONS, SampleStatus, flag_message
@@ -169,7 +170,7 @@ def nca_frame(data, spec: StudySpec, *, selections=None, sep=",", decimal=".", e
                       "pass dose= (a column or an amount).", stacklevel=3)
         spec = replace(spec, columns=ColumnMap(**{**cols.used(), "dose": None}))
     values = _read_samples(src, spec, decimal)
-    prof, keys = _profiles(src, by, values["keep"])
+    prof, keys, key_notes = _profiles(src, by, values["keep"])
     per_profile = _per_profile_values(src, spec, prof, keys, decimal)
     if per_profile["dose_time"] is not None:
         values["time"] = values["time"] - per_profile["dose_time"][np.maximum(prof, 0)]
@@ -183,6 +184,7 @@ def nca_frame(data, spec: StudySpec, *, selections=None, sep=",", decimal=".", e
     res.flags["times_sorted"] = res.flags["times_sorted"] | pad.unsorted(values["time"], prof, values["keep"])
     if sel is not None:
         res.flags["selection_stale"] = sel.pop("stale_mask")
+    res.settings["key_notes"] = key_notes
     return _assemble(res, spec, src, keys, prof, values["time"], pad, arrays, per_profile, key_texts, sel)
 
 
@@ -216,11 +218,18 @@ def _first_error(src, bad, column, message):
 
 
 def _profiles(src: TableSource, by, keep):
-    """Profile id of every row (-1 for rows not placed) and the key table (one row per id)."""
-    prof = src.profiles(by, keep)
+    """Profile id of every row (-1 for rows not placed) and the key table (one row per id).
+
+    Spellings merged by the key rule, and keys differing only by case, are
+    warned about; a specimen or analyte column varying inside a profile is an error.
+    """
     if not keep.any():
         raise InputDataError(f"{src.name}: no row has a sampling time; nothing to analyse.", file=src.file)
-    return prof, src.keys(by, prof, int(prof.max()) + 1)
+    prof, keys, notes = src.profiles(by, keep)
+    for note in notes:
+        warnings.warn(f"{src.name}: {note}", stacklevel=4)
+    check_separating_columns(src.original(), by, prof, keys, src.name, src.file, src.where_row)
+    return prof, keys, notes
 
 
 def _per_profile_values(src: TableSource, spec: StudySpec, prof, keys, decimal) -> dict:
