@@ -34,7 +34,7 @@ def result(plasma):
 
 
 def test_every_row_accounted_and_text_blq_read(plasma, result):
-    rows = result.rows
+    rows = result.samples
     assert len(rows) == len(plasma)  # nothing lost
     # "<BLQ" in PCSTRESC is a BLQ marker: such rows are either BLQ-handled or unused with a reason
     blq_text = plasma["PCSTRESC"].str.strip().eq("<BLQ").to_numpy()
@@ -42,23 +42,23 @@ def test_every_row_accounted_and_text_blq_read(plasma, result):
     measured = ~blq_text & plasma["PCSTRESN"].notna().to_numpy()
     # every measured post-dose value is used
     post = plasma["PCTPTNUM"].to_numpy() >= 0
-    assert rows["used"].to_numpy()[measured & post].all()
+    assert rows["nca_used"].to_numpy()[measured & post].all()
     # the planned pre-dose sample (PCTPTNUM -0.5) is listed as sampled before the dose
     pre = ~post
-    assert rows.loc[pre, "reason"].str.startswith("sampled before the dose").all()
+    assert rows.loc[pre, "nca_reason"].str.startswith("sampled before the dose").all()
 
 
 def test_placebo_profiles_flagged_not_computed(plasma, result):
     # subjects with no measurable concentration (placebo) give NaN plus a flag
     all_blq = plasma.groupby("USUBJID")["PCSTRESN"].apply(lambda s: not (s > 0).any())
     expected = set(all_blq[all_blq].index)
-    flagged = set(result.qc_flags.loc[result.qc_flags["flag"] == "no_measurable", "USUBJID"])
+    flagged = set(result.flags.loc[result.flags["flag"] == "no_measurable", "USUBJID"])
     assert flagged == expected and expected
-    assert result.loc[result["USUBJID"].isin(expected), "AUCLST"].isna().all()
+    assert result.parameters.loc[result.parameters["USUBJID"].isin(expected), "AUCLST"].isna().all()
 
 
 def test_parameters_against_independent_reference(plasma, result):
-    active = result.loc[result["AUCLST"].notna(), "USUBJID"].tolist()
+    active = result.parameters.loc[result.parameters["AUCLST"].notna(), "USUBJID"].tolist()
     assert len(active) > 100
     for subj in active[:25]:
         g = plasma[(plasma["USUBJID"] == subj) & (plasma["PCTPTNUM"] >= 0)].sort_values("PCTPTNUM")
@@ -68,7 +68,7 @@ def test_parameters_against_independent_reference(plasma, result):
         c = np.where(np.isnan(c), 0.0, c)  # BLQ before the first / after the last measurable -> 0
         pos = np.flatnonzero(c > 0)
         last = pos[-1]
-        row = result.loc[result["USUBJID"] == subj].iloc[0]
+        row = result.profile(subj).parameters
         assert row["CMAX"] == c.max() and row["TMAX"] == t[np.argmax(c)]
         # linear trapezoid from (0, 0) (no sample at dose time) to TLST
         tt, cc = np.r_[0.0, t[: last + 1]], np.r_[0.0, c[: last + 1]]
