@@ -10,8 +10,10 @@ from .parameters import PARAMETERS, parameter_table, partial_code
 from .profile import nca_profile, partial_auc
 from .qc import FLAGS, QCThresholds
 from .record import SelectionRecord, profile_fingerprint
+from .sparse import SparseResult, nca_sparse
 from .table import NCARecord, NCATable, nca
 from .units import StudyUnits
+from .urine import UrineResult, nca_urine
 
 __version__ = "0.1.0"
 
@@ -25,11 +27,15 @@ __all__ = [
     "PARAMETERS",
     "QCThresholds",
     "SelectionRecord",
+    "SparseResult",
     "StudyUnits",
     "UnitError",
+    "UrineResult",
     "nca",
     "nca_arrays",
     "nca_profile",
+    "nca_sparse",
+    "nca_urine",
     "parameter_table",
     "partial_auc",
     "partial_code",
