@@ -104,7 +104,7 @@ def _parse(text, role):
 
 def _factor(src, dst, what):
     try:
-        return float(f"{(1.0 * src).to(dst).magnitude:.12g}")
+        return float(f"{(1.0 * src).to(dst).magnitude:.15g}")  # drop pint noise (999.9999999999999)
     except pint.errors.DimensionalityError:
         raise UnitError(f"{what}: {_fmt(src)} cannot be expressed in {_fmt(dst)}; declare the units on one basis "
                         "(mass with mass per volume, or amount of substance with amount per volume).") from None

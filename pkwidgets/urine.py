@@ -45,13 +45,13 @@ import numpy as np
 import pandas as pd
 
 from ._urine_data import UrineResult, read_urine_table, urine_units
+from .engine import ROUTES
 from .lambda_z import fit_lambda_z
 
 __all__ = ["UrineResult", "nca_urine"]
 
 BLQ_OPTIONS = ("zero", "missing")
 MISSING_OPTIONS = ("nan", "lower-bound")
-ROUTES = ("extravascular", "intravascular")
 #: Extrapolated share above which AURCPEO is flagged: by analogy with the plasma 20 % (EMA 2010), no urine source.
 AURCPEO_LIMIT = 20.0
 
@@ -93,9 +93,9 @@ def nca_urine(data, *, by, start, end, conc, volume, units, dose=None, plasma=No
         The interval the plasma AUC covers; the amount over exactly that
         interval is used.  None: the plasma AUC is taken to cover the whole
         urine collection (first start to last end), as declared in ``settings``.
-    route : {"extravascular", "intravascular"}
-        Extravascular: the lambda-z candidates are the rates after the
-        maximum-rate interval; intravascular: from it on.
+    route : {"extravascular", "iv-bolus", "iv-infusion"}
+        The lambda-z candidates are the positive rates after the maximum-rate
+        interval, or from it on for an IV bolus.
     blq : {"zero", "missing"}
     missing : {"nan", "lower-bound"}
     terminal : "auto" or (float, float)
@@ -209,9 +209,9 @@ def _profiles(iv, by, *, route, missing, terminal):
 
 
 def _fit(mid, rate, pos, imax, route, terminal):
-    """Candidates after (extravascular) or from (intravascular) the maximum-rate interval, then the engine's fit."""
+    """Candidates after the maximum-rate interval (from it for an IV bolus), then the engine's fit."""
     col = np.arange(mid.shape[1])[None, :]
-    after = col > imax[:, None] if route == "extravascular" else col >= imax[:, None]
+    after = col >= imax[:, None] if route == "iv-bolus" else col > imax[:, None]
     cand = pos & after
     manual = np.zeros(mid.shape[0], dtype=bool)
     if terminal != "auto":
