@@ -67,7 +67,7 @@ class SparseResult:
         hit = np.logical_and.reduce([self.parameters[b].astype(str).to_numpy() == str(k) for b, k in zip(by, key)])
         if hit.sum() != 1:
             raise KeyError(f"no group {dict(zip(by, key))} in the result.")
-        return self.parameters.loc[hit].iloc[0].drop(by)
+        return self.parameters.loc[hit].iloc[0].drop(by).infer_objects()
 
     def to_long(self) -> pd.DataFrame:
         """One row per group and code: keys, PPTESTCD, PPTEST, value, unit, and se / ci_lower / ci_upper on AUCLST."""

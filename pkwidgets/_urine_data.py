@@ -57,7 +57,7 @@ class UrineResult:
         hit = np.logical_and.reduce([self.parameters[b].astype(str).to_numpy() == str(k) for b, k in zip(by, key)])
         if hit.sum() != 1:
             raise KeyError(f"no profile {dict(zip(by, key))} in the result.")
-        return self.parameters.loc[hit].iloc[0].drop(by)
+        return self.parameters.loc[hit].iloc[0].drop(by).infer_objects()
 
     def to_long(self) -> pd.DataFrame:
         """One row per profile and parameter: keys, PPTESTCD, PPTEST, PPSPEC, value, unit, PPSTINT, PPENINT.
