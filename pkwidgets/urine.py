@@ -247,27 +247,31 @@ def _extrapolate(params, lamz, amt, known, t1, t2, jlast, has_pos):
 
 
 def _profile_flags(params, iv, by, keys, unknown_any, present, missing):
-    flags = []
-
-    def add(p, flag, detail):
-        flags.append([*keys.iloc[p].tolist(), flag, detail])
-
-    for p in range(len(keys)):
-        rows = iv[(iv["_p"] == p) & iv["used"]].sort_values("start")
-        if not present[p].any():
-            add(p, "no_collection", "no post-dose collection interval: nothing computed")
-            continue
-        if unknown_any[p]:
-            what = "RCAMINT is NaN" if missing == "nan" else "RCAMINT is a lower bound"
-            add(p, "amount_unknown", f"{int((~rows['known']).sum())} interval(s) with unknown amount: {what}")
-        gaps = rows["start"].to_numpy()[1:] > rows["end"].to_numpy()[:-1]
-        if gaps.any() or rows["start"].iloc[0] > 0:
-            add(p, "collection_gap", "intervals do not cover the time from the dose to the last end without gaps")
-        if np.isnan(params["LAMZ"].iloc[p]):
-            add(p, "lambda_z_not_estimable", "fewer than 3 declining positive rates after the maximum")
-        if params["AURCPEO"].iloc[p] > AURCPEO_LIMIT:
-            add(p, "extrapolation_high", f"AURCPEO {params['AURCPEO'].iloc[p]:.1f} % > {AURCPEO_LIMIT:g} %")
-    return flags
+    """Reviewer flags per profile, computed column-wise (no loop over profiles but to word them)."""
+    used = iv[iv["used"]]
+    n_unknown = (~used["known"]).groupby(used["_p"]).sum().reindex(range(len(keys)), fill_value=0).to_numpy()
+    same = used["_p"].to_numpy()[1:] == used["_p"].to_numpy()[:-1]
+    gap_after = same & (used["start"].to_numpy()[1:] > used["end"].to_numpy()[:-1])
+    gap = np.zeros(len(keys), dtype=bool)
+    gap[used["_p"].to_numpy()[1:][gap_after]] = True
+    first = used.groupby("_p")["start"].min().reindex(range(len(keys))).to_numpy()
+    gap |= first > 0
+    nothing = ~present.any(axis=1)
+    what = "RCAMINT is NaN" if missing == "nan" else "RCAMINT is a lower bound"
+    peo = params["AURCPEO"].to_numpy()
+    checks = [
+        (nothing, "no_collection", lambda p: "no post-dose collection interval: nothing computed"),
+        (~nothing & unknown_any, "amount_unknown",
+         lambda p: f"{int(n_unknown[p])} interval(s) with unknown amount: {what}"),
+        (~nothing & gap, "collection_gap",
+         lambda p: "intervals do not cover the time from the dose to the last end without gaps"),
+        (~nothing & np.isnan(params["LAMZ"].to_numpy()), "lambda_z_not_estimable",
+         lambda p: "fewer than 3 declining positive rates after the maximum"),
+        (~nothing & (peo > AURCPEO_LIMIT), "extrapolation_high",
+         lambda p: f"AURCPEO {peo[p]:.1f} % > {AURCPEO_LIMIT:g} %"),
+    ]
+    key_rows = keys.to_numpy().tolist()
+    return [[*key_rows[p], flag, word(p)] for p in range(len(keys)) for hit, flag, word in checks if hit[p]]
 
 
 def _renal(params, iv, by, plasma, plasma_auc, plasma_interval, factor, flags, missing):
