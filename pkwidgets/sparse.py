@@ -223,7 +223,8 @@ def _one_group(g, dose_time_conc, ci_level, ci_method):
     mp["weight"] = np.where(mp["in_auclst"], np.r_[part["weights"], np.zeros(times.size - last - 1)], 0.0)
     se = float(np.sqrt(part["var"]))
     if (part["n"] < 2).any():
-        flags.append(("single_value_time", "a time point has fewer than 2 values: no variance there, SE not computed"))
+        flags.append(("single_value_time", "a time point has fewer than 2 values: no variance there, SE not computed "
+                                           "(is `time` the nominal time?)"))
         se = np.nan
     if part["shared_one"]:
         flags.append(("covariance_not_estimable", "two times share exactly one animal: SE not computed"))
