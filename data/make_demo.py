@@ -166,6 +166,10 @@ def main(folder=HERE):
         path = os.path.join(folder, name)
         make(rng).to_csv(path, index=False, lineterminator="\n")
         out[name] = path
+    import demo_tk  # urine (PKW117-UR04) and toxicokinetic (PKW117-TK05) studies: own seeds, files beside this one
+    import demo_urine
+    out.update(demo_urine.main(folder))
+    out.update(demo_tk.main(folder))
     return out
 
 

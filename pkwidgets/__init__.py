@@ -12,8 +12,10 @@ from .qc import FLAGS, QCThresholds
 from .record import SelectionRecord, profile_fingerprint
 from .options import ColumnMap, NCAOptions
 from .result import NCAResult, ProfileData, concat_results
+from .sparse import SparseResult, nca_sparse
 from .table import NCATable, nca
 from .units import StudyUnits
+from .urine import UrineResult, nca_urine
 
 __version__ = "0.1.0"
 
@@ -30,12 +32,16 @@ __all__ = [
     "ProfileData",
     "QCThresholds",
     "SelectionRecord",
+    "SparseResult",
     "StudyUnits",
     "UnitError",
+    "UrineResult",
     "concat_results",
     "nca",
     "nca_arrays",
     "nca_profile",
+    "nca_sparse",
+    "nca_urine",
     "parameter_table",
     "partial_auc",
     "partial_code",

