@@ -24,7 +24,7 @@ Rules
     Lowest small-sample Akaike criterion of the window's regression
     (Hurvich & Tsai, Biometrika 1989;76:297-307, from memory), with the
     Gaussian log-likelihood at the least-squares fit and :math:`k = 2`
-    coefficients, as ``statsmodels`` OLS reports ``aicc``:
+    coefficients, as ``statsmodels.tools.eval_measures.aicc`` computes it:
 
     .. math::
         \mathrm{AICc} = n \ln(2\pi\,SSE/n) + n + 2k + \frac{2k(k+1)}{n-k-1}
@@ -152,8 +152,8 @@ def window_aicc(n, sse, k=2):
     .. math::
         \mathrm{AICc} = n \ln(2\pi\,SSE/n) + n + 2k + \frac{2k(k+1)}{n-k-1}
 
-    (Hurvich & Tsai, Biometrika 1989, from memory; the form of
-    ``statsmodels`` ``OLS(...).fit().aicc``).  NaN or infinite for
+    (Hurvich & Tsai, Biometrika 1989, from memory; equal to
+    ``statsmodels.tools.eval_measures.aicc`` of the OLS log-likelihood).  NaN or infinite for
     ``n <= k + 1``; ``sse`` is floored at :math:`n\,(10^{-12})^2`.
     """
     with np.errstate(divide="ignore", invalid="ignore"):
