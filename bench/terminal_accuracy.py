@@ -138,7 +138,8 @@ def run_scenario(rng, model, design, n, rules):
     oracle.lamz = np.where(oracle.npoints >= 3, oracle.lamz, np.nan)
     rows = {"oracle": score(oracle, true_rate, oracle_first)}
     for rule in rules:
-        fit = fit_lambda_z(t, c, cand, False, axis=0, rule=rule, tmax=tmax)
+        # TMAX goes to every rule for oral dosing and to "two-tmax" always (it requires it)
+        fit = fit_lambda_z(t, c, cand, False, axis=0, rule=rule, tmax=tmax if oral or rule == "two-tmax" else None)
         rows[rule] = score(fit, true_rate, oracle_first)
     return rows
 

@@ -180,6 +180,16 @@ def _fit_samples_major(t, c, candidate, manual, rule, options):
     return _assemble(w, start, has, t.shape)
 
 
+def _samples_major(t, c, candidate, axis):
+    """The three arrays as contiguous samples x profiles float/bool arrays (1-D: one profile)."""
+    t, c, candidate = np.asarray(t, dtype=float), np.asarray(c, dtype=float), np.asarray(candidate, dtype=bool)
+    if t.ndim == 1:
+        return t[:, None], c[:, None], candidate[:, None]
+    if t.ndim != 2:
+        raise ValueError(f"The time array must be 1-D or 2-D; got {t.ndim} dimensions.")
+    return tuple(np.ascontiguousarray(np.moveaxis(a, axis, 0)) for a in (t, c, candidate))
+
+
 def fit_lambda_z(t, c, candidate, manual, *, axis=-1, rule="adjusted-r2", min_points=3,
                  tol=ADJ_R2_TOLERANCE, tmax=None, last_n=3,
                  off_line_levels=terminal_rules.OFF_LINE_LEVELS, run=terminal_rules.EXTENSION_RUN):
@@ -204,12 +214,12 @@ def fit_lambda_z(t, c, candidate, manual, *, axis=-1, rule="adjusted-r2", min_po
         "tail-extension"; see :mod:`pkwidgets.terminal_rules` for each rule,
         its formula and its reference.
     min_points : int
-        Fewest points of an automatic fit ("adjusted-r2", "two-tmax", "aicc",
-        "tail-extension").
+        Fewest points of an automatic fit (not "last-n").
     tol : float
         Tie tolerance on adjusted R² ("adjusted-r2").
     tmax : ndarray, shape (profiles,), optional
-        Time of CMAX per profile; required by "two-tmax".
+        Time of CMAX per profile: required by "two-tmax"; for
+        "tail-extension" a floor at 2 x tmax (give it for extravascular doses).
     last_n : int
         Number of last candidate points ("last-n"), at least 3.
     off_line_levels : (float, float)
@@ -220,9 +230,8 @@ def fit_lambda_z(t, c, candidate, manual, *, axis=-1, rule="adjusted-r2", min_po
     Returns
     -------
     LambdaZFit
-        NaN (and 0 points) for a profile with no qualifying fit, e.g. fewer
-        than ``min_points`` candidates or no declining window.  ``used`` has
-        the layout of ``t``.
+        NaN (0 points) for a profile with no qualifying fit (e.g. fewer than
+        ``min_points`` candidates, no declining window); ``used`` as ``t``.
 
     Examples
     --------
@@ -230,27 +239,17 @@ def fit_lambda_z(t, c, candidate, manual, *, axis=-1, rule="adjusted-r2", min_po
     >>> fit = fit_lambda_z(t, c, c > 0, False, rule="last-n", last_n=3)
     >>> round(float(fit.lamz[0]), 12), int(fit.npoints[0])
     (0.2, 3)
-    >>> fit_lambda_z(t, c, c > 0, False, rule="r2")
+    >>> fit_lambda_z(t, c, c > 0, False, rule="r2")  # doctest: +ELLIPSIS
     Traceback (most recent call last):
     ...
-    ValueError: The 'rule' option must be one of 'adjusted-r2', 'two-tmax', 'last-n', 'aicc', 'tail-extension'; got 'r2'.
+    ValueError: The 'rule' option must be one of 'adjusted-r2', 'two-tmax', ..., 'tail-extension'; got 'r2'.
     """
-    t, c, candidate = np.asarray(t, dtype=float), np.asarray(c, dtype=float), np.asarray(candidate, dtype=bool)
     options = terminal_rules.rule_options(rule, min_points=min_points, tol=tol, tmax=tmax, last_n=last_n,
                                           off_line_levels=off_line_levels, run=run)
-    one = t.ndim == 1
-    if one:
-        t, c, candidate = t[:, None], c[:, None], candidate[:, None]
-    elif t.ndim != 2:
-        raise ValueError(f"The time array must be 1-D or 2-D; got {t.ndim} dimensions.")
-    else:
-        t, c, candidate = (np.ascontiguousarray(np.moveaxis(a, axis, 0)) for a in (t, c, candidate))
-    manual = np.broadcast_to(np.asarray(manual, dtype=bool), t.shape[1:])
-    fit = _fit_samples_major(t, c, candidate, manual, rule, options)
-    if not one:
-        fit.used = np.ascontiguousarray(np.moveaxis(fit.used, 0, axis))
-    else:
-        fit.used = fit.used[:, 0]
+    ts, cs, cand = _samples_major(t, c, candidate, axis)
+    manual = np.broadcast_to(np.asarray(manual, dtype=bool), ts.shape[1:])
+    fit = _fit_samples_major(ts, cs, cand, manual, rule, options)
+    fit.used = fit.used[:, 0] if np.ndim(t) == 1 else np.ascontiguousarray(np.moveaxis(fit.used, 0, axis))
     return fit
 
 

@@ -34,10 +34,15 @@ Rules
     heuristic comparison here, not a likelihood test.
 ``"tail-extension"`` (this project's rule)
     Start from the last ``min_points`` (3) candidates and extend the window
-    backwards one point at a time; stop when ``run`` (4) consecutive earlier
-    points lie off the line of the window after them, and start the window
-    after the latest of those points (a shorter run that reaches the first
-    candidate also stops it).  A point is off the line when its studentised
+    backwards one point at a time; stop at the first run of ``run`` (4)
+    consecutive earlier points that lie off the line of the window after
+    them (a shorter run that reaches the first candidate also stops it).  The
+    window then starts two candidates after the latest point of that run:
+    the point at the edge of a bend is left out as well (a one-point margin,
+    kept only while more than ``min_points`` points remain).  With ``tmax``
+    given (extravascular dosing) the window also starts no earlier than
+    :math:`2\,t_{max}` while at least ``min_points`` points remain there (the
+    two-tmax rule as a floor).  A point is off the line when its studentised
     prediction residual is above the one-sided ``off_line_levels[0]`` (0.70)
     quantile or below minus the ``off_line_levels[1]`` (0.90) quantile of
     Student's t with :math:`n - 2` degrees of freedom.  For a window of
@@ -53,11 +58,12 @@ Rules
     ch. 3, from memory).  The rule stops where the log curve bends beyond the
     window's own residual noise: distribution-phase points lie above the
     terminal line, absorption-phase points below it, so the upper test is the
-    more sensitive one.  Requiring a run of points makes a single noisy point
-    harmless.  The levels and the run length are our choice, tuned on
+    more sensitive one; requiring a run makes one noisy point harmless.  The
+    levels, the run length and the margin are our choice, tuned on
     ``bench/terminal_accuracy.py`` (one- and two-compartment, IV and oral,
-    rich and sparse designs); no source.  All residuals come at once from the
-    suffix sums; one loop over the sample axis counts the runs.
+    rich and sparse designs, residual error 8-25 %); no source.  All
+    residuals come at once from the suffix sums; one loop over the sample
+    axis counts the runs.
 """
 
 from __future__ import annotations
@@ -67,8 +73,6 @@ from numbers import Integral, Real
 
 import numpy as np
 from scipy import stats
-
-from .options import check_choice
 
 __all__ = ["TERMINAL_RULES", "ADJ_R2_TOLERANCE", "OFF_LINE_LEVELS", "EXTENSION_RUN", "WindowStats", "choose_window",
            "rule_options", "window_aicc"]
@@ -203,27 +207,45 @@ def _off_line(w, levels):
     return (df > 0) & ((resid > t_up) | (resid < -t_lo))
 
 
-def _tail_extension(w, *, min_points, off_line_levels, run):
-    off = _off_line(w, off_line_levels)
+def _next_candidate(w, row):
+    """First candidate row after ``row`` (per profile), and whether there is one."""
+    return _first_row(w.candidate & (np.arange(w.n.shape[0])[:, None] > row))
+
+
+def _bend_cut(off, candidate, run):
+    """Latest row of the first run of ``run`` off-line candidates met going backwards (-1: none)."""
     P = off.shape[1]
     streak, top = np.zeros(P, dtype=np.int64), np.full(P, -1)
     cut, done = np.full(P, -1), np.zeros(P, dtype=bool)
     for i in range(off.shape[0] - 1, -1, -1):  # backwards over samples, all profiles at once
-        active = w.candidate[i] & ~done
+        active = candidate[i] & ~done
         bad = off[i] & active
         top = np.where(bad & (streak == 0), i, top)
         streak = np.where(bad, streak + 1, np.where(active, 0, streak))
         hit = active & (streak >= run)
         cut, done = np.where(hit, top, cut), done | hit
-    cut = np.where(~done & (streak > 0), top, cut)  # a shorter run reaching the first candidate
-    start, has = _first_row(w.candidate & (np.arange(off.shape[0])[:, None] > cut))
-    return start, has & (_at(w.n, start) >= max(int(min_points), 3)) & (_at(w.slope, start) < 0)
+    return np.where(~done & (streak > 0), top, cut)  # a shorter run reaching the first candidate
+
+
+def _tail_extension(w, *, min_points, off_line_levels, run, tmax):
+    seed = max(int(min_points), 3)
+    cut = _bend_cut(_off_line(w, off_line_levels), w.candidate, run)
+    start, has = _next_candidate(w, cut)
+    margin, _ = _next_candidate(w, start)  # after a bend, its edge point stays out as well
+    start = np.where((cut >= 0) & (_at(w.n, start) > seed), margin, start)
+    if tmax is not None:  # extravascular: not before 2 x TMAX while enough points remain
+        with np.errstate(invalid="ignore"):
+            floor, has_floor = _first_row(w.candidate & (w.t >= 2.0 * np.asarray(tmax, dtype=float)))
+        later = has_floor & (floor > start) & (_at(w.n, floor) >= seed)
+        start = np.where(later, floor, start)
+    return start, has & (_at(w.n, start) >= seed) & (_at(w.slope, start) < 0)
 
 
 _RULES = {"adjusted-r2": _adjusted_r2, "two-tmax": _two_tmax, "last-n": _last_n, "aicc": _aicc,
           "tail-extension": _tail_extension}
 _RULE_OPTIONS = {"adjusted-r2": ("min_points", "tol"), "two-tmax": ("min_points", "tmax"),
-                 "last-n": ("last_n",), "aicc": ("min_points",), "tail-extension": ("min_points", "off_line_levels", "run")}
+                 "last-n": ("last_n",), "aicc": ("min_points",),
+                 "tail-extension": ("min_points", "off_line_levels", "run", "tmax")}
 
 
 def _check_extension(levels, run):
@@ -240,6 +262,8 @@ def rule_options(rule, *, min_points=3, tol=ADJ_R2_TOLERANCE, tmax=None, last_n=
 
     Raises ``ValueError`` naming the option, what it must be and what it got.
     """
+    from .options import check_choice  # here, so that options.py may import TERMINAL_RULES from this module
+
     check_choice("The 'rule' option", rule, TERMINAL_RULES)
     if isinstance(min_points, bool) or not isinstance(min_points, Integral) or min_points < 2:
         raise ValueError(f"The 'min_points' option must be an integer >= 2; got {min_points!r}.")

@@ -176,7 +176,7 @@ def test_two_tmax_and_last_n_take_the_defined_points():
         assert np.flatnonzero(last.used[:, p]).tolist() == idx.tolist()
 
 
-def _tail_extension_reference(t, c, cand, levels=OFF_LINE_LEVELS, run=EXTENSION_RUN):
+def _tail_extension_reference(t, c, cand, levels=OFF_LINE_LEVELS, run=EXTENSION_RUN, tmax=None):
     """Slow reference written from the rule's definition (pkwidgets.terminal_rules docstring)."""
     idx = np.flatnonzero(cand)
     streak, top, cut = 0, None, None
@@ -197,16 +197,23 @@ def _tail_extension_reference(t, c, cand, levels=OFF_LINE_LEVELS, run=EXTENSION_
     else:
         cut = top if streak > 0 else None
     window = idx[(cut + 1 if cut is not None else 0):]
+    if cut is not None and len(window) > 3:  # one-point margin after a bend
+        window = window[1:]
+    if tmax is not None and (t[window] >= 2 * tmax).sum() >= 3:  # floor at 2 x TMAX
+        window = window[t[window] >= 2 * tmax]
     ok = len(window) >= 3 and stats.linregress(t[window], np.log(c[window])).slope < 0
     return window if ok else np.array([], dtype=int)
 
 
-@pytest.mark.parametrize("levels, run", [(OFF_LINE_LEVELS, EXTENSION_RUN), ((0.9, 0.9), 1), ((0.6, 0.95), 2)])
-def test_tail_extension_matches_its_loop_reference(levels, run):
-    t, c, cand, _ = _noisy_profiles(23, n_prof=150)
-    fit = fit_lambda_z(t, c, cand, False, axis=0, rule="tail-extension", off_line_levels=levels, run=run)
+@pytest.mark.parametrize("levels, run, with_tmax", [
+    (OFF_LINE_LEVELS, EXTENSION_RUN, False), (OFF_LINE_LEVELS, EXTENSION_RUN, True), ((0.9, 0.9), 1, False),
+    ((0.6, 0.95), 2, True)])
+def test_tail_extension_matches_its_loop_reference(levels, run, with_tmax):
+    t, c, cand, _ = _noisy_profiles(23, n_prof=120)
+    tmax = np.random.default_rng(4).choice([0.5, 1.0, 3.0, 8.0], t.shape[1]) if with_tmax else None
+    fit = fit_lambda_z(t, c, cand, False, axis=0, rule="tail-extension", off_line_levels=levels, run=run, tmax=tmax)
     for p in range(t.shape[1]):
-        ref = _tail_extension_reference(t[:, p], c[:, p], cand[:, p], levels, run)
+        ref = _tail_extension_reference(t[:, p], c[:, p], cand[:, p], levels, run, None if tmax is None else tmax[p])
         assert np.flatnonzero(fit.used[:, p]).tolist() == ref.tolist()
 
 
@@ -231,17 +238,19 @@ def test_indometh_subject_4_adjusted_r2_takes_every_point(indometh_4):
 
 @pytest.mark.parametrize("rule, n_points, first", [
     # windows as measured on subject 4 (t 0.25-8 h); each one's line is re-derived by linregress below
-    ("two-tmax", 10, 0.5), ("last-n", 3, 5.0), ("aicc", 5, 3.0), ("tail-extension", 4, 4.0)])
+    ("two-tmax", 10, 0.5), ("last-n", 3, 5.0), ("aicc", 5, 3.0), ("tail-extension", 3, 5.0)])
 def test_indometh_subject_4_windows(indometh_4, rule, n_points, first):
     t, c = indometh_4
-    fit = fit_lambda_z(t, c, c > 0, False, rule=rule, tmax=np.array([t[0]]))
+    # IV bolus: TMAX is the first sample; only two-tmax takes it (its 2 x TMAX = 0.5 h drops 0.25 h)
+    fit = fit_lambda_z(t, c, c > 0, False, rule=rule, tmax=np.array([t[0]]) if rule == "two-tmax" else None)
     assert (fit.npoints[0], fit.t_first[0]) == (n_points, first)
     r = stats.linregress(t[fit.used], np.log(c[fit.used]))
     np.testing.assert_allclose(fit.lamz[0], -r.slope, rtol=1e-12)
 
 
 @pytest.mark.parametrize("kwargs, message", [
-    ({"rule": "adjusted_r2"}, r"The 'rule' option must be one of .*; got 'adjusted_r2'\. Did you mean 'adjusted-r2'\?"),
+    ({"rule": "adjusted_r2"},
+     r"The 'rule' option must be one of .*; got 'adjusted_r2'\. Did you mean 'adjusted-r2'\?"),
     ({"rule": "last-n", "last_n": 2}, r"The 'last_n' option must be an integer >= 3; got 2\."),
     ({"rule": "two-tmax"}, r"The 'two-tmax' rule needs 'tmax'"),
     ({"rule": "tail-extension", "off_line_levels": (0.7,)}, r"The 'off_line_levels' option must be a pair"),

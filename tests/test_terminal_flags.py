@@ -46,4 +46,5 @@ def test_wide_half_life_interval():
     upper = np.array([9.0, 10.0, 10.5, INF, NAN])
     # upper / lower: 1.8 | 2.0 (not > 2) | 2.1 | no finite upper bound (lambda z may be 0) | no interval
     np.testing.assert_array_equal(half_life_interval_wide(lower, upper), [False, False, True, True, False])
-    np.testing.assert_array_equal(half_life_interval_wide(lower, upper, max_ratio=1.5), [True, True, True, True, False])
+    np.testing.assert_array_equal(half_life_interval_wide(lower, upper, max_ratio=1.5),
+                                  [True, True, True, True, False])
