@@ -61,7 +61,8 @@ Rules
     more sensitive one; requiring a run makes one noisy point harmless.  The
     levels, the run length and the margin are our choice, tuned on
     ``bench/terminal_accuracy.py`` (one- and two-compartment, IV and oral,
-    rich and sparse designs, residual error 8-25 %); no source.  All
+    rich and sparse designs; tuned at 15 % residual error and checked at 8 %
+    and 25 %); no source.  All
     residuals come at once from the suffix sums; one loop over the sample
     axis counts the runs.
 """
