@@ -111,6 +111,19 @@ def test_exact_rate_on_noise_free_mono_exponential(rule):
     np.testing.assert_allclose(np.exp(fit.intercept), 50.0, rtol=1e-10)
 
 
+def test_tail_extension_finds_beta_on_a_noise_free_two_compartment_curve():
+    # closed form (Gibaldi & Perrier, ch. 2, from memory): C = A exp(-alpha t) + B exp(-beta t) with
+    # alpha, beta = ((k10+k12+k21) +- sqrt((k10+k12+k21)^2 - 4 k10 k21)) / 2; exact data have no noise, so any
+    # bend is beyond the residual noise and the window must stay where exp(-alpha t) has died out
+    k10, k12, k21, v1 = 0.25, 0.25, 0.1, 20.0
+    s = k10 + k12 + k21
+    alpha, beta = (s + np.sqrt(s * s - 4 * k10 * k21)) / 2, (s - np.sqrt(s * s - 4 * k10 * k21)) / 2
+    t = np.array([0.25, 0.5, 1, 1.5, 2, 3, 4, 6, 8, 12, 16, 24, 36, 48, 72.0])
+    c = 100 / v1 * ((alpha - k21) * np.exp(-alpha * t) + (k21 - beta) * np.exp(-beta * t)) / (alpha - beta)
+    fit = fit_lambda_z(t, c, c > 0, False, rule="tail-extension")
+    assert abs(fit.lamz[0] / beta - 1) < 1e-6
+
+
 def _suffix_windows(t, y, cand):
     idx = np.flatnonzero(cand)
     return [idx[i:] for i in range(len(idx))]
