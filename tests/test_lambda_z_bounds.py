@@ -13,6 +13,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 from scipy import stats
+import statsmodels.api as sm
 
 from pkwidgets.lambda_z import fit_lambda_z
 from pkwidgets.lambda_z_bounds import aucifo_bounds, lambda_z_bounds
@@ -30,7 +31,6 @@ def _tails(seed, n_prof, sd=0.2):
 
 
 def test_se_and_residual_sd_equal_linregress_and_statsmodels():
-    sm = pytest.importorskip("statsmodels.api")
     t, c, _ = _tails(1, 30)
     for rule in ("adjusted-r2", "tail-extension", "aicc"):
         fit = fit_lambda_z(t, c, c > 0, False, axis=0, rule=rule)
@@ -45,7 +45,6 @@ def test_se_and_residual_sd_equal_linregress_and_statsmodels():
 
 @pytest.mark.parametrize("level", [0.95, 0.9])
 def test_lamz_bounds_equal_statsmodels_conf_int(level):
-    sm = pytest.importorskip("statsmodels.api")
     t, c, _ = _tails(2, 20)
     fit = fit_lambda_z(t, c, c > 0, True, axis=0)
     b = lambda_z_bounds(fit, level=level)

@@ -18,6 +18,8 @@ from pathlib import Path
 import numpy as np
 import pytest
 from scipy import stats
+import statsmodels.api as sm
+from statsmodels.tools.eval_measures import aicc
 
 from pkwidgets.lambda_z import fit_lambda_z, fit_lambda_z_profiles_major, fit_lambda_z_samples_major
 from pkwidgets.terminal_rules import OFF_LINE_LEVELS, EXTENSION_RUN, TERMINAL_RULES, window_aicc
@@ -148,8 +150,6 @@ def test_adjusted_r2_rule_matches_a_loop_reference():
 
 def test_window_aicc_equals_statsmodels():
     # statsmodels.tools.eval_measures.aicc(llf, n, k) of the OLS log-likelihood, k = 2 coefficients
-    sm = pytest.importorskip("statsmodels.api")
-    from statsmodels.tools.eval_measures import aicc
     rng = np.random.default_rng(2)
     for n in (4, 6, 11):
         x = np.sort(rng.uniform(0, 24, n))
@@ -160,8 +160,6 @@ def test_window_aicc_equals_statsmodels():
 
 def test_aicc_rule_matches_a_statsmodels_loop():
     # reference: lowest statsmodels aicc over declining suffix windows of >= 4 points, ties to most points
-    sm = pytest.importorskip("statsmodels.api")
-    from statsmodels.tools.eval_measures import aicc
     t, c, cand, _ = _noisy_profiles(17, n_prof=40)
     fit = fit_lambda_z(t, c, cand, False, axis=0, rule="aicc")
     for p in range(t.shape[1]):
