@@ -178,17 +178,17 @@ def _shift_up(a, fill):
     return np.concatenate([a[1:], np.full((1,) + a.shape[1:], fill, dtype=a.dtype)])
 
 
-def _prediction_residuals(w):
+def _prediction_residuals(w, seed):
     """Studentised prediction residual of each candidate against the window that starts after it.
 
     Row ``i`` compares the point at sample ``i`` with the line fitted to the
     candidates after it (the suffix window of row ``i + 1``); returns the
     residuals and their degrees of freedom (NaN / 0 where that window has
-    fewer than 3 points).
+    fewer than ``seed`` points).
     """
     n1, sx1, sy1 = _shift_up(w.n, 0.0), _shift_up(w.sx, 0.0), _shift_up(w.sy, 0.0)
     cxx1, b1, sse1 = _shift_up(w.cxx, np.nan), _shift_up(w.slope, np.nan), _shift_up(w.sse, np.nan)
-    tested = w.candidate & (n1 >= 3)
+    tested = w.candidate & (n1 >= seed)
     with np.errstate(divide="ignore", invalid="ignore"):
         x0 = np.where(w.candidate, w.t, w.tref) - w.tref
         y0 = np.log(np.where(w.candidate, w.c, 1.0)) - w.yref
@@ -199,9 +199,9 @@ def _prediction_residuals(w):
     return np.where(tested, resid, np.nan), np.where(tested, n1 - 2, 0).astype(np.int64)
 
 
-def _off_line(w, levels):
+def _off_line(w, levels, seed):
     """Candidates above the one-sided upper or below the one-sided lower prediction bound."""
-    resid, df = _prediction_residuals(w)
+    resid, df = _prediction_residuals(w, seed)
     dfs = np.arange(1, w.n.shape[0] + 1)
     t_up = stats.t.ppf(levels[0], dfs)[np.maximum(df, 1) - 1]
     t_lo = stats.t.ppf(levels[1], dfs)[np.maximum(df, 1) - 1]
@@ -230,7 +230,7 @@ def _bend_cut(off, candidate, run):
 
 def _tail_extension(w, *, min_points, off_line_levels, run, tmax):
     seed = max(int(min_points), 3)
-    cut = _bend_cut(_off_line(w, off_line_levels), w.candidate, run)
+    cut = _bend_cut(_off_line(w, off_line_levels, seed), w.candidate, run)
     start, has = _next_candidate(w, cut)
     margin, _ = _next_candidate(w, start)  # after a bend, its edge point stays out as well
     start = np.where((cut >= 0) & (_at(w.n, start) > seed), margin, start)
