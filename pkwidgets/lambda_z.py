@@ -1,11 +1,11 @@
 r"""Terminal elimination rate constant (lambda z) by log-linear least squares.
 
-The automatic search fits :math:`\ln C = a - \lambda_z t` to the last 3, 4,
-... candidate points of each profile (candidates: positive concentrations
-after CMAX, not excluded) and keeps the fit with the highest adjusted
-:math:`R^2`; fits within ``tol`` (1e-4) of the best count as tied and the
-one with most points wins.  Only fits with :math:`\lambda_z > 0` qualify.
-This rule is common practice, no source.
+Each profile's candidate points (positive concentrations after CMAX, not
+excluded) are searched for a terminal window, a suffix of the candidates
+(the last 3, 4, ... points), by one of the rules of
+:mod:`pkwidgets.terminal_rules` ("adjusted-r2", "two-tmax", "last-n",
+"aicc", "tail-extension"), and :math:`\ln C = a - \lambda_z t` is fitted to
+it by ordinary least squares.  Only fits with :math:`\lambda_z > 0` qualify.
 
 Every window of a profile is a suffix of its candidate points, so running
 sums of :math:`x, y, x^2, xy, y^2` taken from the end give all windows at
@@ -20,10 +20,14 @@ For a window of :math:`n` points with centred sums
 
 .. math::
     b = S_{xy}/S_{xx}, \quad R^2 = \frac{S_{xy}^2}{S_{xx}S_{yy}}, \quad
-    R^2_{adj} = 1 - (1 - R^2)\frac{n - 1}{n - 2}
+    R^2_{adj} = 1 - (1 - R^2)\frac{n - 1}{n - 2}, \\
+    SSE = S_{yy} - S_{xy}^2/S_{xx}, \quad
+    s = \sqrt{SSE/(n-2)}, \quad SE(b) = s/\sqrt{S_{xx}}
 
-(ordinary least squares; checked against ``scipy.stats.linregress`` in the
-tests).
+(ordinary least squares, e.g. Draper & Smith, Applied Regression Analysis,
+3rd ed., 1998, ch. 1, from memory; checked against
+``scipy.stats.linregress`` in the tests).  Confidence bounds from these
+are in :mod:`pkwidgets.lambda_z_bounds`.
 """
 
 from __future__ import annotations
@@ -32,15 +36,23 @@ from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["LambdaZFit", "fit_lambda_z", "fit_lambda_z_samples_major"]
+from . import terminal_rules
+from .terminal_rules import ADJ_R2_TOLERANCE, WindowStats
 
-#: Adjusted R² values within this of the best are tied (common practice, no source).
-ADJ_R2_TOLERANCE = 1e-4
+__all__ = ["LambdaZFit", "fit_lambda_z", "fit_lambda_z_samples_major", "fit_lambda_z_profiles_major",
+           "ADJ_R2_TOLERANCE"]
 
 
 @dataclass
 class LambdaZFit:
-    """Per-profile lambda-z fit results (1-D arrays over profiles) and the points used (2-D)."""
+    """Per-profile lambda-z fit results (1-D arrays over profiles) and the points used.
+
+    ``used`` has the shape and layout of the input time array.  ``se`` is the
+    standard error of lambda z, ``resid_sd`` the residual standard deviation
+    of ln C about the line and ``df`` its degrees of freedom (points - 2);
+    all NaN (``df`` 0) without a fit, and ``se``/``resid_sd`` NaN for a fit
+    of 2 points.
+    """
 
     lamz: np.ndarray
     intercept: np.ndarray  # ln C at t = 0
@@ -51,6 +63,9 @@ class LambdaZFit:
     t_first: np.ndarray
     t_last: np.ndarray
     used: np.ndarray  # bool, same shape as the time array
+    se: np.ndarray = None
+    resid_sd: np.ndarray = None
+    df: np.ndarray = None
 
 
 def _suffix_sums(t, c, candidate, tref, yref):
@@ -80,44 +95,8 @@ def _suffix_sums(t, c, candidate, tref, yref):
     return q
 
 
-def fit_lambda_z(t, c, candidate, manual, *, min_points=3, tol=ADJ_R2_TOLERANCE):
-    """Fit lambda z for many profiles at once.
-
-    Parameters
-    ----------
-    t, c : ndarray, shape (profiles, samples)
-        Times (increasing along each row over the candidate points) and
-        concentrations.
-    candidate : ndarray of bool, same shape
-        Points that may enter the fit (positive concentration, not excluded,
-        in the allowed range).
-    manual : ndarray of bool, shape (profiles,)
-        True where ``candidate`` is a fixed window chosen by the user: all its
-        points are used (at least 2), no search.
-    min_points : int
-        Fewest points of an automatic fit.
-    tol : float
-        Tie tolerance on adjusted R².
-
-    Returns
-    -------
-    LambdaZFit
-        NaN (and 0 points) for a profile with no qualifying fit, e.g. fewer
-        than ``min_points`` candidates or no declining window.
-    """
-    fit = fit_lambda_z_samples_major(
-        np.ascontiguousarray(t.T), np.ascontiguousarray(c.T), np.ascontiguousarray(candidate.T), manual,
-        min_points=min_points, tol=tol)
-    fit.used = np.ascontiguousarray(fit.used.T)
-    return fit
-
-
-def fit_lambda_z_samples_major(t, c, candidate, manual, *, min_points=3, tol=ADJ_R2_TOLERANCE):
-    """:func:`fit_lambda_z` on samples x profiles arrays (``used`` comes back samples x profiles).
-
-    The array engine works in this layout: per-profile values broadcast along
-    the long axis and the running sums advance one contiguous row at a time.
-    """
+def _window_stats(t, c, candidate):
+    """Least-squares statistics of every suffix window (samples x profiles arrays)."""
     N, P = t.shape
     rows = np.arange(P)
     has_cand = candidate.any(axis=0)
@@ -139,44 +118,150 @@ def fit_lambda_z_samples_major(t, c, candidate, manual, *, min_points=3, tol=ADJ
         slope = cxy / cxx
         r2 = np.minimum(cxy * cxy / (cxx * cyy), 1.0)
         r2adj = 1.0 - (1.0 - r2) * (n - 1.0) / (n - 2.0)
+        sse = np.maximum(cyy - cxy * slope, 0.0)
+    return WindowStats(t=t[lo:hi], c=c[lo:hi], candidate=cand_t, lo=lo, hi=hi, tref=tref, yref=yref,
+                       has_cand=has_cand, n=n, sx=sx, sy=sy, cxx=cxx, cxy=cxy, cyy=cyy, slope=slope,
+                       r2=r2, r2adj=r2adj, sse=sse)
 
-    declining = slope < 0
-    # automatic: suffix windows starting at a candidate, >= min_points, declining
-    ok = cand_t & (n >= min_points) & declining & np.isfinite(r2adj)
-    best = np.max(np.where(ok, r2adj, -np.inf), axis=0)
-    qualifies = ok & (r2adj >= best - tol)
-    start_auto = np.argmax(qualifies, axis=0)  # earliest start = most points (row in lo:hi)
-    has_auto = qualifies.any(axis=0)
-    # manual: the whole candidate set, from its first point
-    start_manual = np.argmax(cand_t, axis=0)
-    n_manual = n[start_manual, rows]
-    has_manual = has_cand & (n_manual >= 2) & declining[start_manual, rows]
 
-    start = np.where(manual, start_manual, start_auto)
-    has = np.where(manual, has_manual, has_auto)
+def _manual_window(w):
+    """The whole candidate set of each profile, from its first point (at least 2, declining)."""
+    rows = np.arange(w.n.shape[1])
+    start = np.argmax(w.candidate, axis=0)
+    n_manual = w.n[start, rows]
+    has = w.has_cand & (n_manual >= 2) & (w.slope[start, rows] < 0)
+    return start, has
+
+
+def _assemble(w, start, has, shape):
+    """Pick each profile's window row from the suffix statistics into a :class:`LambdaZFit`."""
+    N, P = shape
+    rows = np.arange(P)
 
     def pick(a):  # a is (rows lo:hi) x profiles
         return np.where(has, a[start, rows], np.nan)
 
-    b = pick(slope)
-    npts = pick(n)
-    mean_x = pick(sx) / npts
-    mean_y = pick(sy) / npts
-    intercept = yref + mean_y - b * mean_x - b * tref
+    b = pick(w.slope)
+    npts = pick(w.n)
+    mean_x = pick(w.sx) / npts
+    mean_y = pick(w.sy) / npts
+    intercept = w.yref + mean_y - b * mean_x - b * w.tref
     with np.errstate(invalid="ignore", divide="ignore"):
-        corr = np.where(has, np.sign(b) * np.sqrt(pick(r2)), np.nan)
-    r2adj_out = pick(r2adj)
+        corr = np.where(has, np.sign(b) * np.sqrt(pick(w.r2)), np.nan)
+        resid_sd = np.sqrt(pick(w.sse) / (npts - 2.0))
+        resid_sd = np.where(npts >= 3, resid_sd, np.nan)
+        se = resid_sd / np.sqrt(pick(w.cxx))
+    r2adj_out = pick(w.r2adj)
     r2adj_out = np.where(npts >= 3, r2adj_out, np.nan)
     used = np.zeros((N, P), dtype=bool)
-    used[lo:hi] = cand_t & (np.arange(hi - lo)[:, None] >= start) & has
+    used[w.lo:w.hi] = w.candidate & (np.arange(w.hi - w.lo)[:, None] >= start) & has
     return LambdaZFit(
         lamz=-b,
         intercept=np.where(has, intercept, np.nan),
-        r2=pick(r2),
+        r2=pick(w.r2),
         r2adj=r2adj_out,
         corr=corr,
         npoints=np.where(has, npts, 0).astype(np.int64),
-        t_first=np.where(has, t[start + lo, rows], np.nan),
-        t_last=np.where(has, tref, np.nan),
+        t_first=np.where(has, w.t[start, rows], np.nan),
+        t_last=np.where(has, w.tref, np.nan),
         used=used,
+        se=se,
+        resid_sd=resid_sd,
+        df=np.where(has, npts - 2, 0).astype(np.int64),
     )
+
+
+def _fit_samples_major(t, c, candidate, manual, rule, options):
+    w = _window_stats(t, c, candidate)
+    start_auto, has_auto = terminal_rules.choose_window(w, rule, **options)
+    start_manual, has_manual = _manual_window(w)
+    start = np.where(manual, start_manual, start_auto)
+    has = np.where(manual, has_manual, has_auto)
+    return _assemble(w, start, has, t.shape)
+
+
+def _samples_major(t, c, candidate, axis):
+    """The three arrays as contiguous samples x profiles float/bool arrays (1-D: one profile)."""
+    t, c, candidate = np.asarray(t, dtype=float), np.asarray(c, dtype=float), np.asarray(candidate, dtype=bool)
+    if t.ndim == 1:
+        return t[:, None], c[:, None], candidate[:, None]
+    if t.ndim != 2:
+        raise ValueError(f"The time array must be 1-D or 2-D; got {t.ndim} dimensions.")
+    return tuple(np.ascontiguousarray(np.moveaxis(a, axis, 0)) for a in (t, c, candidate))
+
+
+def fit_lambda_z(t, c, candidate, manual, *, axis=-1, rule="adjusted-r2", min_points=3,
+                 tol=ADJ_R2_TOLERANCE, tmax=None, last_n=3,
+                 off_line_levels=terminal_rules.OFF_LINE_LEVELS, run=terminal_rules.EXTENSION_RUN):
+    r"""Fit lambda z for many profiles at once.
+
+    Parameters
+    ----------
+    t, c : ndarray, 1-D or 2-D
+        Times (increasing along the samples axis over the candidate points)
+        and concentrations; 1-D arrays are one profile.
+    candidate : ndarray of bool, same shape
+        Points that may enter the fit (positive concentration, not excluded,
+        in the allowed range).
+    manual : ndarray of bool, shape (profiles,), or bool
+        True where ``candidate`` is a fixed window chosen by the user: all its
+        points are used (at least 2), no search.
+    axis : int
+        The samples axis (-1: profiles x samples; 0: samples x profiles, the
+        engine's layout), as in scipy's array functions.
+    rule : str
+        Automatic window rule: "adjusted-r2", "two-tmax", "last-n", "aicc" or
+        "tail-extension"; see :mod:`pkwidgets.terminal_rules` for each rule,
+        its formula and its reference.
+    min_points : int
+        Fewest points of an automatic fit (not "last-n").
+    tol : float
+        Tie tolerance on adjusted R² ("adjusted-r2").
+    tmax : ndarray, shape (profiles,), optional
+        Time of CMAX per profile: required by "two-tmax"; for
+        "tail-extension" a floor at 2 x tmax (give it for extravascular doses).
+    last_n : int
+        Number of last candidate points ("last-n"), at least 3.
+    off_line_levels : (float, float)
+        One-sided t levels above and below the line of "tail-extension".
+    run : int
+        Consecutive off-line points that stop "tail-extension".
+
+    Returns
+    -------
+    LambdaZFit
+        NaN (0 points) for a profile with no qualifying fit (e.g. fewer than
+        ``min_points`` candidates, no declining window); ``used`` as ``t``.
+
+    Examples
+    --------
+    >>> t = np.array([1.0, 2, 4, 8]); c = 10 * np.exp(-0.2 * t)
+    >>> fit = fit_lambda_z(t, c, c > 0, False, rule="last-n", last_n=3)
+    >>> round(float(fit.lamz[0]), 12), int(fit.npoints[0])
+    (0.2, 3)
+    >>> fit_lambda_z(t, c, c > 0, False, rule="r2")  # doctest: +ELLIPSIS
+    Traceback (most recent call last):
+    ...
+    ValueError: The 'rule' option must be one of 'adjusted-r2', 'two-tmax', ..., 'tail-extension'; got 'r2'.
+    """
+    options = terminal_rules.rule_options(rule, min_points=min_points, tol=tol, tmax=tmax, last_n=last_n,
+                                          off_line_levels=off_line_levels, run=run)
+    ts, cs, cand = _samples_major(t, c, candidate, axis)
+    manual = np.broadcast_to(np.asarray(manual, dtype=bool), ts.shape[1:])
+    fit = _fit_samples_major(ts, cs, cand, manual, rule, options)
+    fit.used = fit.used[:, 0] if np.ndim(t) == 1 else np.ascontiguousarray(np.moveaxis(fit.used, 0, axis))
+    return fit
+
+
+def fit_lambda_z_samples_major(t, c, candidate, manual, *, min_points=3, tol=ADJ_R2_TOLERANCE):
+    """:func:`fit_lambda_z` with ``axis=0`` and the adjusted-R² rule (the engine's call; kept as an alias).
+
+    The array engine works in this layout: per-profile values broadcast along
+    the long axis and the running sums advance one contiguous row at a time.
+    """
+    return _fit_samples_major(t, c, candidate, manual, "adjusted-r2", {"min_points": min_points, "tol": tol})
+
+
+def fit_lambda_z_profiles_major(t, c, candidate, manual, *, min_points=3, tol=ADJ_R2_TOLERANCE):
+    """:func:`fit_lambda_z` with ``axis=-1`` and the adjusted-R² rule (the former ``fit_lambda_z`` call)."""
+    return fit_lambda_z(t, c, candidate, manual, axis=-1, min_points=min_points, tol=tol)

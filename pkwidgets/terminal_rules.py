@@ -1,0 +1,288 @@
+r"""Rules that choose the terminal window of each profile from its suffix windows.
+
+A window is a suffix of a profile's candidate points (the last 3, 4, ...
+points after CMAX).  :func:`pkwidgets.lambda_z.fit_lambda_z` computes the
+least-squares statistics of every suffix window at once
+(:class:`WindowStats`, arrays of shape (rows, profiles), row = first sample
+of the window); a rule returns, per profile, the row where its window starts
+and whether it has one.  Every rule is vectorised over profiles; none loops
+over profiles or windows.
+
+Rules
+-----
+``"adjusted-r2"``
+    Highest adjusted :math:`R^2`; values within ``tol`` (1e-4) of the best
+    are tied and the tie goes to the window with most points (common
+    practice, no source).
+``"two-tmax"``
+    All candidate points at or after :math:`2\,t_{max}` (Scheerans,
+    Derendorf & Kloft, Biopharm Drug Dispos 2008;29:145-157, from memory);
+    at least ``min_points`` of them.  Meant for extravascular dosing.
+``"last-n"``
+    The last ``last_n`` candidate points (common practice, no source).
+``"aicc"``
+    Lowest small-sample Akaike criterion of the window's regression
+    (Hurvich & Tsai, Biometrika 1989;76:297-307, from memory), with the
+    Gaussian log-likelihood at the least-squares fit and :math:`k = 2`
+    coefficients, as ``statsmodels.tools.eval_measures.aicc`` computes it:
+
+    .. math::
+        \mathrm{AICc} = n \ln(2\pi\,SSE/n) + n + 2k + \frac{2k(k+1)}{n-k-1}
+
+    Windows of at least 4 points (the criterion is infinite for 3); ties go
+    to the most points.  Windows hold different data, so the criterion is a
+    heuristic comparison here, not a likelihood test.
+``"tail-extension"`` (this project's rule)
+    Start from the last ``min_points`` (3) candidates and extend the window
+    backwards one point at a time; stop at the first run of ``run`` (4)
+    consecutive earlier points that lie off the line of the window after
+    them (a shorter run that reaches the first candidate also stops it).  The
+    window then starts two candidates after the latest point of that run:
+    the point at the edge of a bend is left out as well (a one-point margin,
+    kept only while more than ``min_points`` points remain).  With ``tmax``
+    given (extravascular dosing) the window also starts no earlier than
+    :math:`2\,t_{max}` while at least ``min_points`` points remain there (the
+    two-tmax rule as a floor).  A point is off the line when its studentised
+    prediction residual is above the one-sided ``off_line_levels[0]`` (0.70)
+    quantile or below minus the ``off_line_levels[1]`` (0.90) quantile of
+    Student's t with :math:`n - 2` degrees of freedom.  For a window of
+    :math:`n` points and an earlier point :math:`(x_0, y_0)`, :math:`y = \ln C`:
+
+    .. math::
+        r_0 = \frac{y_0 - \hat y(x_0)}
+        {s \sqrt{1 + \frac{1}{n} + \frac{(x_0 - \bar x)^2}{S_{xx}}}}, \quad
+        \text{off line if } r_0 > t_{0.70,\,n-2} \text{ or } r_0 < -t_{0.90,\,n-2}
+
+    (the prediction interval of a new observation in simple linear
+    regression, Draper & Smith, Applied Regression Analysis, 3rd ed., 1998,
+    ch. 3, from memory).  The rule stops where the log curve bends beyond the
+    window's own residual noise: distribution-phase points lie above the
+    terminal line, absorption-phase points below it, so the upper test is the
+    more sensitive one; requiring a run makes one noisy point harmless.  The
+    levels, the run length and the margin are our choice, tuned on
+    ``bench/terminal_accuracy.py`` (one- and two-compartment, IV and oral,
+    rich and sparse designs; tuned at 15 % residual error and checked at 8 %
+    and 25 %); no source.  All
+    residuals come at once from the suffix sums; one loop over the sample
+    axis counts the runs.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from numbers import Integral, Real
+
+import numpy as np
+from scipy import stats
+
+__all__ = ["TERMINAL_RULES", "ADJ_R2_TOLERANCE", "OFF_LINE_LEVELS", "EXTENSION_RUN", "WindowStats", "choose_window",
+           "rule_options", "window_aicc"]
+
+#: Automatic terminal-window rules, in the order the documentation lists them.
+TERMINAL_RULES = ("adjusted-r2", "two-tmax", "last-n", "aicc", "tail-extension")
+#: Adjusted R² values within this of the best are tied (common practice, no source).
+ADJ_R2_TOLERANCE = 1e-4
+#: One-sided t levels (above, below the line) of the "tail-extension" rule's off-line test, and the
+#: run of off-line points that stops it (our choice, tuned on ``bench/terminal_accuracy.py``).
+OFF_LINE_LEVELS = (0.70, 0.90)
+EXTENSION_RUN = 4
+#: Residual SD floor (ln units) of the AICc: rounding-level residuals of exact data stay finite.
+_SD_FLOOR = 1e-12
+
+
+@dataclass
+class WindowStats:
+    """Least-squares statistics of every suffix window; arrays (rows, profiles) unless noted.
+
+    ``x = t - tref`` and ``y = ln C - yref`` relative to each profile's last
+    candidate; ``n, sx, sy`` are sums over the window, ``cxx, cxy, cyy`` its
+    centred sums, ``sse`` its residual sum of squares.  ``t, c, candidate``
+    are the rows ``lo:hi`` of the inputs; ``tref, yref, has_cand`` are per
+    profile.
+    """
+
+    t: np.ndarray
+    c: np.ndarray
+    candidate: np.ndarray
+    lo: int
+    hi: int
+    tref: np.ndarray
+    yref: np.ndarray
+    has_cand: np.ndarray
+    n: np.ndarray
+    sx: np.ndarray
+    sy: np.ndarray
+    cxx: np.ndarray
+    cxy: np.ndarray
+    cyy: np.ndarray
+    slope: np.ndarray
+    r2: np.ndarray
+    r2adj: np.ndarray
+    sse: np.ndarray
+
+
+def _first_row(mask):
+    """First row where ``mask`` holds, and whether it holds anywhere (per profile)."""
+    return np.argmax(mask, axis=0), mask.any(axis=0)
+
+
+def _at(a, start):
+    return a[start, np.arange(a.shape[1])]
+
+
+def _adjusted_r2(w, *, min_points, tol):
+    declining = w.slope < 0
+    # automatic: suffix windows starting at a candidate, >= min_points, declining
+    ok = w.candidate & (w.n >= min_points) & declining & np.isfinite(w.r2adj)
+    best = np.max(np.where(ok, w.r2adj, -np.inf), axis=0)
+    qualifies = ok & (w.r2adj >= best - tol)
+    return _first_row(qualifies)  # earliest start = most points
+
+
+def _two_tmax(w, *, min_points, tmax):
+    with np.errstate(invalid="ignore"):
+        after = w.candidate & (w.t >= 2.0 * np.asarray(tmax, dtype=float))
+    start, has = _first_row(after)
+    return start, has & (_at(w.n, start) >= min_points) & (_at(w.slope, start) < 0)
+
+
+def _last_n(w, *, last_n):
+    start, has = _first_row(w.candidate & (w.n == last_n))
+    return start, has & (_at(w.slope, start) < 0)
+
+
+def window_aicc(n, sse, k=2):
+    r"""Small-sample AIC of a least-squares line on ``n`` points with residual sum of squares ``sse``.
+
+    .. math::
+        \mathrm{AICc} = n \ln(2\pi\,SSE/n) + n + 2k + \frac{2k(k+1)}{n-k-1}
+
+    (Hurvich & Tsai, Biometrika 1989, from memory; equal to
+    ``statsmodels.tools.eval_measures.aicc`` of the OLS log-likelihood).  NaN or infinite for
+    ``n <= k + 1``; ``sse`` is floored at :math:`n\,(10^{-12})^2`.
+    """
+    with np.errstate(divide="ignore", invalid="ignore"):
+        sse = np.maximum(sse, n * _SD_FLOOR**2)
+        return n * np.log(2.0 * np.pi * sse / n) + n + 2.0 * k + 2.0 * k * (k + 1.0) / (n - k - 1.0)
+
+
+def _aicc(w, *, min_points):
+    crit = window_aicc(w.n, w.sse)
+    ok = w.candidate & (w.n >= max(min_points, 4)) & (w.slope < 0) & np.isfinite(crit)
+    start = np.argmin(np.where(ok, crit, np.inf), axis=0)  # first minimum = most points
+    return start, ok.any(axis=0)
+
+
+def _shift_up(a, fill):
+    """``a[i + 1]`` at row ``i`` (the window that starts after sample ``i``)."""
+    return np.concatenate([a[1:], np.full((1,) + a.shape[1:], fill, dtype=a.dtype)])
+
+
+def _prediction_residuals(w, seed):
+    """Studentised prediction residual of each candidate against the window that starts after it.
+
+    Row ``i`` compares the point at sample ``i`` with the line fitted to the
+    candidates after it (the suffix window of row ``i + 1``); returns the
+    residuals and their degrees of freedom (NaN / 0 where that window has
+    fewer than ``seed`` points).
+    """
+    n1, sx1, sy1 = _shift_up(w.n, 0.0), _shift_up(w.sx, 0.0), _shift_up(w.sy, 0.0)
+    cxx1, b1, sse1 = _shift_up(w.cxx, np.nan), _shift_up(w.slope, np.nan), _shift_up(w.sse, np.nan)
+    tested = w.candidate & (n1 >= seed)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        x0 = np.where(w.candidate, w.t, w.tref) - w.tref
+        y0 = np.log(np.where(w.candidate, w.c, 1.0)) - w.yref
+        xbar = sx1 / n1
+        resid = y0 - (sy1 / n1 + b1 * (x0 - xbar))
+        scale = np.sqrt(sse1 / (n1 - 2.0) * (1.0 + 1.0 / n1 + (x0 - xbar) ** 2 / cxx1))
+        resid = resid / np.maximum(scale, 1e-10)  # 1e-10: exact data gives rounding, not a bend
+    return np.where(tested, resid, np.nan), np.where(tested, n1 - 2, 0).astype(np.int64)
+
+
+def _off_line(w, levels, seed):
+    """Candidates above the one-sided upper or below the one-sided lower prediction bound."""
+    resid, df = _prediction_residuals(w, seed)
+    dfs = np.arange(1, w.n.shape[0] + 1)
+    t_up = stats.t.ppf(levels[0], dfs)[np.maximum(df, 1) - 1]
+    t_lo = stats.t.ppf(levels[1], dfs)[np.maximum(df, 1) - 1]
+    return (df > 0) & ((resid > t_up) | (resid < -t_lo))
+
+
+def _next_candidate(w, row):
+    """First candidate row after ``row`` (per profile), and whether there is one."""
+    return _first_row(w.candidate & (np.arange(w.n.shape[0])[:, None] > row))
+
+
+def _bend_cut(off, candidate, run):
+    """Latest row of the first run of ``run`` off-line candidates met going backwards (-1: none)."""
+    P = off.shape[1]
+    streak, top = np.zeros(P, dtype=np.int64), np.full(P, -1)
+    cut, done = np.full(P, -1), np.zeros(P, dtype=bool)
+    for i in range(off.shape[0] - 1, -1, -1):  # backwards over samples, all profiles at once
+        active = candidate[i] & ~done
+        bad = off[i] & active
+        top = np.where(bad & (streak == 0), i, top)
+        streak = np.where(bad, streak + 1, np.where(active, 0, streak))
+        hit = active & (streak >= run)
+        cut, done = np.where(hit, top, cut), done | hit
+    return np.where(~done & (streak > 0), top, cut)  # a shorter run reaching the first candidate
+
+
+def _tail_extension(w, *, min_points, off_line_levels, run, tmax):
+    seed = max(int(min_points), 3)
+    cut = _bend_cut(_off_line(w, off_line_levels, seed), w.candidate, run)
+    start, has = _next_candidate(w, cut)
+    margin, _ = _next_candidate(w, start)  # after a bend, its edge point stays out as well
+    start = np.where((cut >= 0) & (_at(w.n, start) > seed), margin, start)
+    if tmax is not None:  # extravascular: not before 2 x TMAX while enough points remain
+        with np.errstate(invalid="ignore"):
+            floor, has_floor = _first_row(w.candidate & (w.t >= 2.0 * np.asarray(tmax, dtype=float)))
+        later = has_floor & (floor > start) & (_at(w.n, floor) >= seed)
+        start = np.where(later, floor, start)
+    return start, has & (_at(w.n, start) >= seed) & (_at(w.slope, start) < 0)
+
+
+_RULES = {"adjusted-r2": _adjusted_r2, "two-tmax": _two_tmax, "last-n": _last_n, "aicc": _aicc,
+          "tail-extension": _tail_extension}
+_RULE_OPTIONS = {"adjusted-r2": ("min_points", "tol"), "two-tmax": ("min_points", "tmax"),
+                 "last-n": ("last_n",), "aicc": ("min_points",),
+                 "tail-extension": ("min_points", "off_line_levels", "run", "tmax")}
+
+
+def _check_extension(levels, run):
+    if not (isinstance(levels, (tuple, list)) and len(levels) == 2
+            and all(isinstance(v, Real) and 0.5 <= v < 1.0 for v in levels)):
+        raise ValueError(f"The 'off_line_levels' option must be a pair of numbers in [0.5, 1); got {levels!r}.")
+    if isinstance(run, bool) or not isinstance(run, Integral) or run < 1:
+        raise ValueError(f"The 'run' option must be an integer >= 1; got {run!r}.")
+
+
+def rule_options(rule, *, min_points=3, tol=ADJ_R2_TOLERANCE, tmax=None, last_n=3,
+                 off_line_levels=OFF_LINE_LEVELS, run=EXTENSION_RUN):
+    """Check ``rule`` and its options; return the options that rule takes (a dict).
+
+    Raises ``ValueError`` naming the option, what it must be and what it got.
+    """
+    from .options import check_choice  # here, so that options.py may import TERMINAL_RULES from this module
+
+    check_choice("The 'rule' option", rule, TERMINAL_RULES)
+    if isinstance(min_points, bool) or not isinstance(min_points, Integral) or min_points < 2:
+        raise ValueError(f"The 'min_points' option must be an integer >= 2; got {min_points!r}.")
+    if rule == "last-n" and (isinstance(last_n, bool) or not isinstance(last_n, Integral) or last_n < 3):
+        raise ValueError(f"The 'last_n' option must be an integer >= 3; got {last_n!r}.")
+    if rule == "two-tmax" and tmax is None:
+        raise ValueError("The 'two-tmax' rule needs 'tmax', the time of CMAX of each profile; got None.")
+    if rule == "tail-extension":
+        _check_extension(off_line_levels, run)
+    given = {"min_points": min_points, "tol": tol, "tmax": tmax, "last_n": last_n,
+             "off_line_levels": off_line_levels, "run": run}
+    return {k: given[k] for k in _RULE_OPTIONS[rule]}
+
+
+def choose_window(w, rule, **options):
+    """Row (within ``lo:hi``) where each profile's window starts, and whether it has one.
+
+    ``options`` are those :func:`rule_options` returns for ``rule``.
+    """
+    return _RULES[rule](w, **options)
+
