@@ -7,11 +7,14 @@ from .blq import BLQRules
 from .engine import ArrayResult, nca_arrays
 from .errors import InputDataError, UnitError
 from .parameters import PARAMETERS, parameter_table, partial_code
+from .pp import check_pp, to_pp, write_pp
 from .profile import nca_profile, partial_auc
 from .qc import FLAGS, QCThresholds
 from .record import SelectionRecord, profile_fingerprint
+from .sdtm import SDTMRead, read_sdtm
 from .table import NCARecord, NCATable, nca
 from .units import StudyUnits
+from .workbook import write_workbook
 
 __version__ = "0.1.0"
 
@@ -24,9 +27,11 @@ __all__ = [
     "NCATable",
     "PARAMETERS",
     "QCThresholds",
+    "SDTMRead",
     "SelectionRecord",
     "StudyUnits",
     "UnitError",
+    "check_pp",
     "nca",
     "nca_arrays",
     "nca_profile",
@@ -34,4 +39,8 @@ __all__ = [
     "partial_auc",
     "partial_code",
     "profile_fingerprint",
+    "read_sdtm",
+    "to_pp",
+    "write_pp",
+    "write_workbook",
 ]
