@@ -49,7 +49,7 @@ class SDTMRead:
     Attributes
     ----------
     long : DataFrame
-        One row per placed PC row (index: the PC row's position), columns
+        One row per placed PC row (index: the PC row's label), columns
         ``time`` (h after the dose), ``conc``, ``dose``, ``lloq``,
         ``nominal_time`` and the SDTM keys; see :func:`read_sdtm`.
     unplaced : DataFrame
@@ -221,7 +221,8 @@ def read_sdtm(pc, ex=None, *, analyte=None, specimen=None, date_only_dose="midni
     Returns
     -------
     DataFrame or SDTMRead
-        One row per placed PC row, index the PC row's position, columns:
+        One row per placed PC row, index the PC row's label (its position
+        for a file, or when the labels repeat), columns:
         the PC keys (STUDYID, USUBJID, PCTESTCD, PCTEST, PCSPEC, PCSEQ, ...),
         ``time`` (actual hours after the matched dose), ``nominal_time``
         (hours), ``conc`` (the number, or ``"<LLOQ"``/``"BLQ"`` text that
@@ -261,7 +262,8 @@ def read_sdtm(pc, ex=None, *, analyte=None, specimen=None, date_only_dose="midni
     pc_frame, pc_name = read_domain(pc, "pc")
     _require(pc_frame, PC_REQUIRED, pc_name, "read_sdtm needs the PC domain as CDISC SDTM names it.")
     n_read = len(pc_frame)
-    pc_frame = pc_frame.reset_index(drop=True)
+    if not pc_frame.index.is_unique:  # row labels name the PC rows in the output and in messages
+        pc_frame = pc_frame.reset_index(drop=True)
     rows = _choose(_choose(pc_frame, "PCTESTCD", analyte, "analyte", pc_name), "PCSPEC", specimen, "specimen",
                    pc_name)
     when, date_only, problem = parse_datetimes(_text(rows, "PCDTC"))
