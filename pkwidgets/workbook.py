@@ -3,7 +3,10 @@
 One sheet per table (parameters, summaries, flags, unused rows, settings),
 units in the header cells (``CMAX (ng/mL)``), the header row frozen and in
 bold, columns sized to their text.  Numbers are written as numbers (NaN as
-an empty cell), so a reviewer can recompute from the cells.
+an empty cell), so a reviewer can recompute from the cells; openpyxl writes
+16 significant digits (relative rounding below 1e-15; Excel shows 15), so
+the workbook is for review and reports, and the CSV/PP exports are the
+exact record.
 """
 
 from __future__ import annotations
