@@ -109,11 +109,11 @@ def _nominal_times(rows):
     """Planned time after the dose in hours: PCELTM (ISO 8601 duration) where given, else PCTPTNUM."""
     if "PCELTM" in rows.columns:
         hours, _ = parse_durations(_text(rows, "PCELTM"))
-        return np.where(np.isnan(hours), _number(rows, "PCTPTNUM"), hours), "PCELTM (PCTPTNUM where empty)"
-    return _number(rows, "PCTPTNUM"), "PCTPTNUM, taken to be in hours"
+        return np.where(np.isnan(hours), _number(rows, "PCTPTNUM"), hours)
+    return _number(rows, "PCTPTNUM")
 
 
-def _doses(ex, name):
+def _doses(ex):
     """EX records as doses: subject, instant, order, amount, unit, route; and subjects whose doses cannot be ordered."""
     when, date_only, problem = parse_datetimes(_text(ex, "EXSTDTC"))
     d = pd.DataFrame({
@@ -148,8 +148,12 @@ def _match(samples, doses):
     return out
 
 
-def _placement(rows, when, date_only, problem, doses, unordered):
-    """Per PC row: matched dose index (-1 if none), reason code and reason text ("" when placed)."""
+def _placement(rows, when, date_only, problem, doses, unordered, own_reference):
+    """Per PC row: matched dose index (-1 if none), reason code and reason text ("" when placed).
+
+    With EX the dose is the latest at or before the sample; without it
+    (``own_reference``) each row's own PCRFTDTC.
+    """
     n = len(rows)
     code = np.full(n, "", dtype=object)
     why = np.full(n, "", dtype=object)
@@ -171,12 +175,18 @@ def _placement(rows, when, date_only, problem, doses, unordered):
          np.array([f"no matching dose: {unordered.get(s, '')}" for s in subj], dtype=object))
     ok = code == ""
     idx = np.full(n, -1)
-    idx[ok] = _match(pd.DataFrame({"USUBJID": subj[ok], "when": when[ok]}), doses)
-    mark(idx < 0, "no_dose", "no matching dose: the subject has no EX record with a usable EXSTDTC")
+    if own_reference:
+        where = {k: i for i, k in enumerate(zip(doses["USUBJID"], doses["dose_datetime"]))}
+        ref = _text(rows, "PCRFTDTC").to_numpy()
+        idx[ok] = [where.get(k, -1) for k in zip(subj[ok], ref[ok])]
+        mark(idx < 0, "no_dose", "no reference: PCRFTDTC is empty or not an ISO 8601 date-time")
+    else:
+        idx[ok] = _match(pd.DataFrame({"USUBJID": subj[ok], "when": when[ok]}), doses)
+        mark(idx < 0, "no_dose", "no matching dose: the subject has no EX record with a usable EXSTDTC")
     return idx, code, why, mark
 
 
-def _dose_reasons(idx, code, mark, doses, value, date_only_dose):
+def _dose_reasons(idx, code, mark, doses, value, date_only_dose, with_doses):
     """Placebo, missing amount, ambiguous or date-only doses: reasons for the samples that follow them."""
     d = doses.iloc[np.maximum(idx, 0)].reset_index(drop=True)
     has = idx >= 0
@@ -184,10 +194,11 @@ def _dose_reasons(idx, code, mark, doses, value, date_only_dose):
     mark(has & d["same_time"].to_numpy(), "ambiguous_dose",
          "ambiguous dose: the subject has several EX records at this EXSTDTC" + desc)
     measurable = np.where(value > 0, "; a measurable concentration is reported", "")
-    mark(has & (d["dose"].to_numpy() == 0), "placebo",
-         "placebo: the matching dose is 0 " + d["dose_unit"].to_numpy(dtype=object) + desc + measurable)
-    mark(has & ~(d["dose"].to_numpy() > 0), "no_dose_amount",
-         "no dose amount: EXDOSE of the matching dose is empty or not positive" + desc)
+    if with_doses:
+        mark(has & (d["dose"].to_numpy() == 0), "placebo",
+             "placebo: the matching dose is 0 " + d["dose_unit"].to_numpy(dtype=object) + desc + measurable)
+        mark(has & ~(d["dose"].to_numpy() > 0), "no_dose_amount",
+             "no dose amount: EXDOSE of the matching dose is empty or not positive" + desc)
     if date_only_dose == "unplaced":
         mark(has & d["date_only"].to_numpy(), "dose_time_unknown",
              "dose time unknown: EXSTDTC has no time of day" + desc)
@@ -272,13 +283,13 @@ def read_sdtm(pc, ex=None, *, analyte=None, specimen=None, date_only_dose="midni
     if ex is not None:
         ex_frame, ex_name = read_domain(ex, "ex")
         _require(ex_frame, EX_REQUIRED, ex_name, "read_sdtm needs the EX domain as CDISC SDTM names it.")
-        doses, unordered = _doses(ex_frame, ex_name)
-        notes += _ex_notes(ex_frame, doses)
+        doses, unordered = _doses(ex_frame)
+        notes += _ex_notes(ex_frame)
     else:
         doses, unordered = _reference_doses(rows, pc_name), {}
-    idx, code, why, mark = _placement(rows, when, date_only, problem, doses, unordered)
+    idx, code, why, mark = _placement(rows, when, date_only, problem, doses, unordered, ex is None)
     conc, value, blq, lloq, bad = _concentrations(rows)
-    d = _dose_reasons(idx, code, mark, doses, value, date_only_dose)
+    d = _dose_reasons(idx, code, mark, doses, value, date_only_dose, ex is not None)
     mark(bad, "unreadable_conc", "unreadable result: PCSTRESC is neither a number nor a BLQ marker")
     placed = code == ""
     long = _long_table(rows, placed, when, d, conc, value, blq, lloq, ex is not None)
@@ -305,7 +316,7 @@ def _reference_doses(rows, name):
                              "which is not a column; pass ex= (the EX domain).", column="PCRFTDTC")
     ref = pd.DataFrame({"USUBJID": _text(rows, "USUBJID"), "EXSTDTC": _text(rows, "PCRFTDTC"),
                         "EXDOSE": 1.0, "EXDOSU": "", "STUDYID": _text(rows, "STUDYID")})
-    doses, _ = _doses(ref.drop_duplicates(["USUBJID", "EXSTDTC"]), name)
+    doses, _ = _doses(ref.drop_duplicates(["USUBJID", "EXSTDTC"]))
     doses["dose"] = np.nan
     return doses
 
@@ -317,8 +328,7 @@ def _long_table(rows, placed, when, d, conc, value, blq, lloq, with_doses):
     if "STUDYID" not in out.columns:
         out.insert(0, "STUDYID", d["STUDYID"].to_numpy())
     hours = (when[keep] - d["dose_dt"].to_numpy()) / np.timedelta64(1, "h")
-    nominal, _ = _nominal_times(rows.loc[keep])
-    out["nominal_time"] = nominal
+    out["nominal_time"] = _nominal_times(rows.loc[keep])
     out["time"] = hours.astype(float)
     out["conc"] = pd.Series(conc[keep], index=out.index, dtype=object)
     out["conc_value"], out["blq"], out["lloq"] = value[keep], blq[keep], lloq[keep]
@@ -347,7 +357,7 @@ def _constant(long, column, keys, name, what):
             raise InputDataError(
                 f"{name}: {what} unit changes{where}: {values[0]!r} (row {a}, subject {long.at[a, 'USUBJID']}) "
                 f"and {values[1]!r} (row {b}, subject {long.at[b, 'USUBJID']}); convert to one unit first.",
-                line=int(b), column=column)
+                line=b if isinstance(b, (int, np.integer)) else None, column=column)
     return filled[column].unique().tolist()
 
 
@@ -361,13 +371,8 @@ def _units(long, name, with_doses):
     return {"time": "h", "conc": conc[0] if len(conc) == 1 else None, "dose": dose[0] if dose else None}
 
 
-def _ex_notes(ex, doses):
+def _ex_notes(ex):
     notes = []
-    n_imputed = int(doses["date_only"].sum())
-    if n_imputed:
-        notes.append(f"{n_imputed} EX record(s) give EXSTDTC as a date without a time of day: the dose is taken "
-                     "at 00:00 of that date (column dose_time_imputed); pass date_only_dose='unplaced' to list "
-                     "their samples as unplaced instead.")
     freq = _text(ex, "EXDOSFRQ").str.upper()
     start, end = _text(ex, "EXSTDTC").str[:10], _text(ex, "EXENDTC").str[:10]
     spans = ((freq != "") & (freq != "ONCE") & (end != "") & (end > start)).sum()
@@ -379,12 +384,19 @@ def _ex_notes(ex, doses):
 
 
 def _placement_notes(long):
+    notes = []
+    imputed = long.loc[long["dose_time_imputed"]]
+    if len(imputed):
+        notes.append(f"{len(imputed)} sample(s) of {imputed['USUBJID'].nunique()} subject(s) follow a dose whose "
+                     "date-time (EXSTDTC, or PCRFTDTC without EX) has no time of day: the dose is taken at 00:00 "
+                     "of that date (column dose_time_imputed); pass date_only_dose='unplaced' to list them as "
+                     "unplaced instead.")
     per = long.groupby(["USUBJID", "PCTESTCD", "PCSPEC"])["dose_number"].nunique()
     multi = per[per > 1]
-    if multi.empty:
-        return []
-    return [f"{len(multi)} profile(s) have samples after more than one dose (e.g. {multi.index[0]}): add "
-            "'dose_number' to by= so that each dose is its own profile."]
+    if len(multi):
+        notes.append(f"{len(multi)} profile(s) have samples after more than one dose (e.g. {multi.index[0]}): "
+                     "add 'dose_number' to by= so that each dose is its own profile.")
+    return notes
 
 
 def _summary(n_read, n_chosen, long, unplaced, notes):
@@ -392,5 +404,7 @@ def _summary(n_read, n_chosen, long, unplaced, notes):
              ("placed (in the long table)", len(long)), ("unplaced", len(unplaced))]
     items += [(f"unplaced: {k}", int(v)) for k, v in unplaced["reason_code"].value_counts().sort_index().items()]
     items += [("profiles (USUBJID x PCTESTCD x PCSPEC)", int(long.groupby(["USUBJID", "PCTESTCD", "PCSPEC"]).ngroups)),
-              ("time unit", "h (actual time after the dose)"), ("notes", len(notes))]
+              ("time unit", "h (actual time after the dose)"),
+              ("nominal time from", "PCELTM (PCTPTNUM where empty)" if "PCELTM" in long.columns
+               else "PCTPTNUM, taken to be in hours"), ("notes", len(notes))]
     return pd.DataFrame(items, columns=["item", "value"])

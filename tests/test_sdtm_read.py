@@ -127,7 +127,7 @@ def test_warnings_say_what_was_assumed(domains):
         r = pk.read_sdtm(pc, ex, details=True)
     texts = [str(w.message) for w in caught]
     # EXSTDTC is a date only in this sample; EXDOSFRQ "QD" with a later EXENDTC (pharmaverse EX)
-    assert any("without a time of day: the dose is taken at 00:00" in t for t in texts)
+    assert any("has no time of day: the dose is taken at 00:00" in t for t in texts)
     assert any("repeat the dose (EXDOSFRQ)" in t for t in texts)
     assert texts == r.notes
 
@@ -170,6 +170,20 @@ def test_files_read_like_tables(domains, read, tmp_path, suffix):
     np.testing.assert_array_equal(r.long["time"], read.long["time"])
     np.testing.assert_array_equal(r.long["conc"].astype(str), read.long["conc"].astype(str))
     assert len(r.unplaced) == len(read.unplaced)
+
+
+def test_without_ex_the_reference_is_pcrftdtc(domains, read):
+    pc, ex = domains
+    doses = first_dose(ex)
+    p = pc.assign(PCRFTDTC=doses.loc[pc["USUBJID"], "EXSTDTC"].to_numpy() + "T00:00")  # SDTMIG: PC reference
+    r = quiet_read(p, None, details=True)
+    # same times as from EX (placebo subjects included: no dose amount to tell them apart)
+    np.testing.assert_array_equal(r.long.loc[read.long.index, "time"], read.long["time"])
+    assert len(r.long) == len(pc) and "dose" not in r.long.columns and r.units["dose"] is None
+    assert not r.long["dose_time_imputed"].any()
+    p.loc[p.index[3], "PCRFTDTC"] = ""
+    r = quiet_read(p, None, details=True)
+    assert r.unplaced["reason"].tolist() == ["no reference: PCRFTDTC is empty or not an ISO 8601 date-time"]
 
 
 def test_analyte_and_specimen_choice(domains):
