@@ -1,4 +1,4 @@
-"""Reading one SDTM domain from a DataFrame or a file, and reading its columns as text or numbers."""
+"""Reading one SDTM domain from a DataFrame or a file, and its columns as text, numbers, results and times."""
 
 from __future__ import annotations
 
@@ -8,6 +8,8 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from ._iso8601 import parse_durations
+from .blq import parse_concentrations
 from .errors import InputDataError
 
 __all__ = ["read_domain"]
@@ -62,3 +64,27 @@ def _number(frame, column):
     if column not in frame.columns:
         return np.full(len(frame), np.nan)
     return pd.to_numeric(_text(frame, column).replace("", None), errors="coerce").to_numpy(dtype=float)
+
+
+def _concentrations(rows):
+    """conc for nca (float, or ``"<LLOQ"``/``"BLQ"`` text), numeric value, BLQ flag, LLOQ, unreadable text."""
+    text = _text(rows, "PCSTRESC")
+    value, blq, lloq_text, bad = parse_concentrations(list(text))
+    stresn = _number(rows, "PCSTRESN")
+    value = np.where(blq, np.nan, np.where(np.isnan(stresn), value, stresn))  # a BLQ marker wins
+    bad &= np.isnan(stresn)
+    lloq = _number(rows, "PCLLOQ")
+    lloq = np.where(np.isnan(lloq), lloq_text, lloq)
+    conc = value.astype(object)
+    marker = np.array(["BLQ" if np.isnan(q) else f"<{float(q)!r}" for q in lloq], dtype=object)
+    conc[blq] = marker[blq]
+    conc[~blq & np.isnan(value)] = None
+    return conc, value, blq, lloq, bad
+
+
+def _nominal_times(rows):
+    """Planned time after the dose in hours: PCELTM (ISO 8601 duration) where given, else PCTPTNUM."""
+    if "PCELTM" in rows.columns:
+        hours, _ = parse_durations(_text(rows, "PCELTM"))
+        return np.where(np.isnan(hours), _number(rows, "PCTPTNUM"), hours)
+    return _number(rows, "PCTPTNUM")

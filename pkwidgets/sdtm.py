@@ -27,9 +27,8 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
-from ._iso8601 import parse_datetimes, parse_durations
-from ._sdtm_io import _number, _require, _text, read_domain
-from .blq import parse_concentrations
+from ._iso8601 import parse_datetimes
+from ._sdtm_io import _concentrations, _nominal_times, _number, _require, _text, read_domain
 from .errors import InputDataError
 
 __all__ = ["SDTMRead", "read_sdtm", "read_domain"]
@@ -87,30 +86,6 @@ def _choose(rows, column, wanted, option, name):
         raise InputDataError(f"{name}: {option}={wanted!r} matches no {column} value; the values are "
                              f"{sorted(set(have))}.", column=column)
     return rows.loc[keep]
-
-
-def _concentrations(rows):
-    """conc for nca (float, or ``"<LLOQ"``/``"BLQ"`` text), numeric value, BLQ flag, LLOQ, unreadable text."""
-    text = _text(rows, "PCSTRESC")
-    value, blq, lloq_text, bad = parse_concentrations(list(text))
-    stresn = _number(rows, "PCSTRESN")
-    value = np.where(blq, np.nan, np.where(np.isnan(stresn), value, stresn))  # a BLQ marker wins
-    bad &= np.isnan(stresn)
-    lloq = _number(rows, "PCLLOQ")
-    lloq = np.where(np.isnan(lloq), lloq_text, lloq)
-    conc = value.astype(object)
-    marker = np.array(["BLQ" if np.isnan(q) else f"<{float(q)!r}" for q in lloq], dtype=object)
-    conc[blq] = marker[blq]
-    conc[~blq & np.isnan(value)] = None
-    return conc, value, blq, lloq, bad
-
-
-def _nominal_times(rows):
-    """Planned time after the dose in hours: PCELTM (ISO 8601 duration) where given, else PCTPTNUM."""
-    if "PCELTM" in rows.columns:
-        hours, _ = parse_durations(_text(rows, "PCELTM"))
-        return np.where(np.isnan(hours), _number(rows, "PCTPTNUM"), hours)
-    return _number(rows, "PCTPTNUM")
 
 
 def _doses(ex):
