@@ -13,10 +13,13 @@ Return value (a design choice, for reviewers)
 ``read_sdtm(...)`` returns the long table itself, a plain ``DataFrame`` that
 ``pk.nca(long, by=["USUBJID", "PCTESTCD", "PCSPEC"])`` analyses as it is.
 Everything else (unplaced rows, summary, units, reference date-times) is
-returned by ``read_sdtm(..., details=True)`` as an :class:`SDTMRead`; the
-same is attached to ``long.attrs["sdtm"]`` for convenience, but pandas may
-drop ``attrs`` when the table is transformed, so code that must not lose
-the unplaced rows uses ``details=True``.
+returned by ``read_sdtm(..., details=True)`` as an :class:`SDTMRead`: use
+it when the unplaced rows must be seen.  The long table also carries
+``STUDYID`` and ``dose_datetime`` as columns (what :func:`pkwidgets.to_pp`
+needs), and ``long.attrs["sdtm"]`` holds plain values for convenience
+(studyid, units, notes, the count of unplaced rows, the summary, reference
+date-times as ``"USUBJID/dose_number"`` -> text): no DataFrame, since pandas
+compares ``attrs`` when it combines tables, and may drop them.
 """
 
 from __future__ import annotations
@@ -217,7 +220,7 @@ def read_sdtm(pc, ex=None, *, analyte=None, specimen=None, date_only_dose="midni
         ``dose_number`` (order of the dose in EX, per subject),
         ``dose_datetime`` (EXSTDTC as written), ``sample_datetime`` (PCDTC),
         ``dose_time_imputed`` and ``time_unit`` ("h").  ``long.attrs["sdtm"]``
-        holds the other fields of :class:`SDTMRead`.
+        holds plain values (see the module docstring).
 
     Notes
     -----
@@ -279,9 +282,18 @@ def read_sdtm(pc, ex=None, *, analyte=None, specimen=None, date_only_dose="midni
                  .drop_duplicates(["USUBJID", "dose_number"]).reset_index(drop=True))
     summary = _summary(n_read, len(rows), long, unplaced, notes)
     out = SDTMRead(long=long, unplaced=unplaced, summary=summary, units=units, reference=reference, notes=notes)
-    long.attrs["sdtm"] = {"unplaced": unplaced, "summary": summary, "units": units, "reference": reference,
-                          "notes": notes, "studyid": sorted(set(long["STUDYID"]) - {""})}
+    long.attrs["sdtm"] = _attrs(out)
     return out if details else long
+
+
+def _attrs(read):
+    """Plain values only (no DataFrame): pandas compares ``attrs`` when it combines tables."""
+    ref = read.reference
+    return {"studyid": sorted(set(read.long["STUDYID"]) - {""}), "units": dict(read.units),
+            "notes": list(read.notes), "unplaced_rows": len(read.unplaced),
+            "summary": dict(zip(read.summary["item"], read.summary["value"].astype(str))),
+            "reference_times": {f"{u}/{n}": t for u, n, t in zip(ref["USUBJID"], ref["dose_number"],
+                                                                 ref["dose_datetime"])}}
 
 
 def _reference_doses(rows, name):

@@ -268,3 +268,12 @@ def test_bad_option_named(domains):
     pc, ex = domains
     with pytest.raises(ValueError, match=r"'date_only_dose' option must be one of \('midnight', 'unplaced'\)"):
         pk.read_sdtm(pc, ex, date_only_dose="noon")
+
+
+def test_attrs_hold_plain_values_so_tables_combine(read):
+    # pandas compares attrs when it combines frames: a DataFrame there made pd.concat raise (found here)
+    both = pd.concat([read.long, read.long])
+    assert len(both) == 2 * len(read.long)
+    attrs = read.long.attrs["sdtm"]
+    assert attrs["unplaced_rows"] == len(read.unplaced) and attrs["units"] == read.units
+    assert attrs["reference_times"]["01-701-1028/1"] == "2013-07-19"  # EXSTDTC of the subject's first EX record
