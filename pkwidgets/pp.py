@@ -107,10 +107,11 @@ def _reference(reference_times, by, subject):
     ref = ref[join + ["dose_datetime"] + extra].astype(object).drop_duplicates()
     dup = ref.duplicated(join, keep=False)
     if dup.any():
-        first = ref.loc[dup, join].iloc[0].to_dict()
-        raise InputDataError(f"profile {first} has more than one reference date-time or STUDYID in reference_times "
-                             f"({sorted(ref.loc[dup & (ref[join] == pd.Series(first)).all(axis=1), 'dose_datetime'].astype(str))}); "
-                             "add the column that separates the doses (e.g. 'dose_number') to by.", profile=first)
+        key = ref.loc[dup, join].iloc[0]
+        same = ref.loc[(ref[join] == key).all(axis=1), "dose_datetime"].astype(str)
+        raise InputDataError(f"profile {key.to_dict()} has more than one reference date-time or STUDYID in "
+                             f"reference_times ({sorted(same)}); add the column that separates the doses "
+                             "(e.g. 'dose_number') to by.", profile=key.to_dict())
     return ref, join
 
 

@@ -219,7 +219,8 @@ def read_sdtm(pc, ex=None, *, analyte=None, specimen=None, date_only_dose="midni
         ``blq``, ``lloq``, ``conc_unit``, ``dose``, ``dose_unit``, ``route``,
         ``dose_number`` (order of the dose in EX, per subject),
         ``dose_datetime`` (EXSTDTC as written), ``sample_datetime`` (PCDTC),
-        ``dose_time_imputed`` and ``time_unit`` ("h").  ``long.attrs["sdtm"]``
+        ``dose_time_imputed``, ``time_unit`` ("h") and, when PC has PCENDTC
+        (interval collections), ``end_time`` (hours after the same dose).  ``long.attrs["sdtm"]``
         holds plain values (see the module docstring).
 
     Notes
@@ -327,6 +328,9 @@ def _long_table(rows, placed, when, d, conc, value, blq, lloq, with_doses):
     out["dose_number"] = d["dose_number"].to_numpy()
     out["dose_datetime"] = d["dose_datetime"].to_numpy()
     out["sample_datetime"] = _text(rows.loc[keep], "PCDTC").to_numpy()
+    if "PCENDTC" in rows.columns:  # end of an interval collection (urine), hours after the same dose
+        end, _, _ = parse_datetimes(_text(rows.loc[keep], "PCENDTC"))
+        out["end_time"] = ((end.to_numpy() - d["dose_dt"].to_numpy()) / np.timedelta64(1, "h")).astype(float)
     out["dose_time_imputed"] = d["date_only"].to_numpy(dtype=bool)
     out["time_unit"] = "h"
     return out
@@ -359,15 +363,12 @@ def _units(long, name, with_doses):
 
 
 def _ex_notes(ex):
-    notes = []
     freq = _text(ex, "EXDOSFRQ").str.upper()
     start, end = _text(ex, "EXSTDTC").str[:10], _text(ex, "EXENDTC").str[:10]
-    spans = ((freq != "") & (freq != "ONCE") & (end != "") & (end > start)).sum()
-    if spans:
-        notes.append(f"{int(spans)} EX record(s) repeat the dose (EXDOSFRQ) until a later EXENDTC: each is read "
-                     "as one administration at its EXSTDTC; give one EX record per administration if samples "
-                     "follow later administrations.")
-    return notes
+    spans = int(((freq != "") & (freq != "ONCE") & (end != "") & (end > start)).sum())
+    return [f"{spans} EX record(s) repeat the dose (EXDOSFRQ) until a later EXENDTC: each is read as one "
+            "administration at its EXSTDTC; give one EX record per administration if samples follow later "
+            "administrations."] if spans else []
 
 
 def _placement_notes(long):

@@ -223,6 +223,19 @@ def test_iso8601_durations_for_planned_times():
     assert problem[5].startswith("years or months") and problem[6] == "not an ISO 8601 duration"
 
 
+def test_interval_collections_get_their_end_time(domains):
+    pc, ex = domains
+    # SDTMIG: for an interval collection PCDTC is the start and PCENDTC the end; make the pharmaverse
+    # urine rows so (their PCDTC is the end of 0-6, 6-12, 12-24, 24-48 h) and check by pandas arithmetic
+    urine = pc[(pc["PCSPEC"] == "URINE") & (pc["USUBJID"] == "01-701-1028")]
+    start = pd.to_datetime(urine["PCDTC"]) - pd.to_timedelta([6, 6, 12, 24], unit="h")
+    p = urine.assign(PCENDTC=urine["PCDTC"], PCDTC=start.dt.strftime("%Y-%m-%dT%H:%M:%S"))
+    r = quiet_read(p, ex)
+    dose = first_dose(ex).loc["01-701-1028", "when"]
+    np.testing.assert_allclose(r["time"], (start - dose) / pd.Timedelta(hours=1))
+    np.testing.assert_allclose(r["end_time"], [6, 12, 24, 48])
+
+
 def test_pceltm_preferred_to_pctptnum(domains):
     pc, ex = domains
     p = pc[pc["USUBJID"] == "01-701-1028"].assign(PCELTM="PT0.5H")
