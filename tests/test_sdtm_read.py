@@ -108,8 +108,10 @@ def test_blq_markers_and_lloq(domains, read):
 
 def test_nca_runs_without_mapping_and_never_mixes_specimens(domains, read):
     pc, _ = domains
+    bare = pk.nca(read.long, by=["USUBJID", "PCTESTCD", "PCSPEC"])  # no column mapping, no option
     res = pk.nca(read.long, by=["USUBJID", "PCTESTCD", "PCSPEC"], units=read.units)
     p = res.parameters
+    np.testing.assert_array_equal(bare.parameters["AUCLST"], p["AUCLST"])
     assert set(p["PCSPEC"]) == {"PLASMA", "URINE"}
     assert len(p) == 2 * read.long["USUBJID"].nunique()
     # reference: the largest PCSTRESN of each subject and specimen, by pandas
