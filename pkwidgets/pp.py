@@ -196,6 +196,10 @@ def to_pp(long, *, by, studyid=None, specimen=None, reference_times=None, keys=N
     missing = [c for c in need if c not in long.columns]
     if missing:
         raise ValueError(f"long must be the table of res.to_long(); columns {missing} are missing.")
+    part = long["PPTESTCD"].astype(str).eq("AUCINT")
+    if part.any() and ("PPSTINT" not in long or long.loc[part, "PPSTINT"].fillna("").eq("").any()):
+        raise ValueError("partial areas (AUCINT) need their interval in PPSTINT/PPENINT: run nca with units= "
+                         "(the time unit) so that to_long() gives them as ISO 8601 durations.")
     ref, join = _reference(reference_times, by, mapping["USUBJID"])
     keys_frame, ids = _profiles(long, by, mapping, studyid, specimen, ref, join)
     pos = pd.MultiIndex.from_frame(keys_frame.astype(str)).get_indexer(

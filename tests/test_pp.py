@@ -163,6 +163,13 @@ def test_bad_arguments_named(study, kwargs, error, match):
         to_pp(res.to_long(), **kwargs)
 
 
+def test_partial_area_without_interval_named(study):
+    long, res, _ = study
+    lo = res.to_long().assign(PPSTINT="")
+    with pytest.raises(ValueError, match=r"partial areas \(AUCINT\) need their interval in PPSTINT/PPENINT"):
+        to_pp(lo, by=BY, reference_times=long)
+
+
 def test_two_reference_times_for_one_profile_named(study):
     long, res, _ = study
     ref = long.copy()
