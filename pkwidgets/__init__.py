@@ -6,36 +6,41 @@ Results support qualified review; follow local regulations and SOPs.
 from .blq import BLQRules
 from .engine import ArrayResult, nca_arrays
 from .errors import InputDataError, UnitError
+from .options import ColumnMap, NCAOptions
 from .parameters import PARAMETERS, parameter_table, partial_code
+from .pp import check_pp, to_pp, write_pp
 from .profile import nca_profile, partial_auc
 from .qc import FLAGS, QCThresholds
 from .record import SelectionRecord, profile_fingerprint
-from .options import ColumnMap, NCAOptions
 from .result import NCAResult, ProfileData, concat_results
+from .sdtm import SDTMRead, read_sdtm
 from .sparse import SparseResult, nca_sparse
 from .table import NCATable, nca
 from .units import StudyUnits
 from .urine import UrineResult, nca_urine
+from .workbook import write_workbook
 
 __version__ = "0.1.0"
 
 __all__ = [
     "ArrayResult",
     "BLQRules",
+    "ColumnMap",
     "FLAGS",
     "InputDataError",
-    "ColumnMap",
     "NCAOptions",
     "NCAResult",
     "NCATable",
     "PARAMETERS",
     "ProfileData",
     "QCThresholds",
+    "SDTMRead",
     "SelectionRecord",
     "SparseResult",
     "StudyUnits",
     "UnitError",
     "UrineResult",
+    "check_pp",
     "concat_results",
     "nca",
     "nca_arrays",
@@ -46,4 +51,8 @@ __all__ = [
     "partial_auc",
     "partial_code",
     "profile_fingerprint",
+    "read_sdtm",
+    "to_pp",
+    "write_pp",
+    "write_workbook",
 ]
