@@ -24,6 +24,7 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 import pandas as pd
 
+from .exports import ResultExports
 from .long import long_table
 from .options import NCAOptions
 
@@ -138,7 +139,7 @@ def _key_text(value) -> str:
 
 
 @dataclass(frozen=True, repr=False, eq=False)
-class NCAResult:
+class NCAResult(ResultExports):
     """Parameters, samples and flags of a study analysis, joined by ``profile_id``.
 
     Attributes
@@ -168,7 +169,6 @@ class NCAResult:
     by: tuple
     arrays: ProfileArrays
 
-    # ------------------------------------------------------------------ lookups
     @property
     def unused(self) -> pd.DataFrame:
         """Input rows not used, with their reason."""
@@ -248,7 +248,6 @@ class NCAResult:
         for pid in self.parameters["profile_id"]:
             yield self.profile(profile_id=pid)
 
-    # ------------------------------------------------------------------ derived tables
     def subset(self, selection) -> "NCAResult":
         """The result restricted to some profiles: all three tables and the arrays agree.
 
@@ -292,7 +291,6 @@ class NCAResult:
 
         return summarize(self.parameters.drop(columns="profile_id"), by=by, parameters=parameters, units=self.units)
 
-    # ------------------------------------------------------------------ display and old names
     def __repr__(self):
         return (f"NCAResult: {len(self.parameters)} profiles by {list(self.by)}, {len(self.samples)} rows "
                 f"({len(self.unused)} not used), {len(self.flags)} flags\n{self.parameters!r}")

