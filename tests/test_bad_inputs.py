@@ -419,7 +419,7 @@ RECORD_CASES = [
                                                                              '"schema_version": 99') + "[]}"),
                frame(), "raises", r"selections\.json has schema_version 99"),
     RecordCase("record-entry-malformed", lambda p: _write(p, VALID_HEAD + '[{"profile": 1}]}'), frame(),
-               "raises", r"selections\.json, entry 0: "),
+               "raises", r"selections\.json, entry 0, field 'choice': is missing"),
     RecordCase("record-not-utf8", lambda p: _write_bytes(p, b"\xff\xfe{"), frame(), "raises",
                r"selections\.json is not valid JSON"),
     RecordCase("record-for-data-that-changed", lambda p: _record(p, frame(), {1: (4, 24), 2: (4, 24)}), _changed(),
