@@ -224,7 +224,7 @@ class SelectionRecord:
         if path != self.path:
             self._on_disk = 0  # another file: every entry is new to it
         try:
-            with filelock.FileLock(_lock_path(path), timeout=LOCK_TIMEOUT):
+            with filelock.FileLock(_lock_path(path), timeout=LOCK_TIMEOUT, poll_interval=0.005):
                 merged = self._merge(path)
                 write_atomic(path, dump_record(merged))
         except filelock.Timeout:

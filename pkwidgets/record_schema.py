@@ -213,7 +213,8 @@ def parse_record(raw: bytes, path) -> dict:
 
 def _where(path, i, entry, field=""):
     label = ""
-    if isinstance(entry, dict) and isinstance(entry.get("profile"), list):
+    profile = entry.get("profile") if isinstance(entry, dict) else None
+    if isinstance(profile, list) and profile and all(isinstance(x, str) for x in profile):
         label = f" (profile {'/'.join(map(str, entry['profile']))})"
     return f"selection record {path}, entry {i}{label}" + (f", field {field!r}" if field else "")
 
