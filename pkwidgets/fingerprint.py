@@ -91,9 +91,8 @@ def profile_fingerprint(time, conc, blq=None, *, lloq=None, blq_rules=None, auc_
     platform and locale), ``-0.0`` as ``0.0``, NaN as ``nan``; a BLQ
     sample's conc as ``blq``, the BLQ mark as ``1``/``0``; the LLOQ of a BLQ
     sample, ``-`` for a measured one.  The text is encoded as UTF-8 and
-    hashed with SHA-256 (FIPS 180-4).  The order of the input rows does not
-    change the fingerprint; any change of a time, a concentration, a BLQ
-    mark, a BLQ sample's LLOQ, a rule or the method does.
+    hashed with SHA-256 (FIPS 180-4).  Row order does not change it; a
+    change of a time, conc, BLQ mark, BLQ LLOQ, rule or method does.
 
     Examples
     --------

@@ -122,17 +122,12 @@ def apply_selections(record, key_texts, time, conc, blq, exclude, terminal, *, l
             continue
         term[p] = np.nan
         excl[p] = False
-        if st.fingerprint != fps[p]:
+        hits, why, absent = _check_choice(st, fps[p], time[p])
+        if why:
             stale[p] = True
-            problems[tuple(k)] = ("the choice has no fingerprint" if st.fingerprint is None else
-                                  "the fingerprint differs: the data, LLOQ, BLQ rules or area method changed")
-            continue
-        hits = [np.isclose(time[p], x, rtol=1e-9, atol=1e-12) for x in st.exclude]
-        absent = [x for x, h in zip(st.exclude, hits) if not h.any()]
-        if absent:
-            stale[p] = True
-            missing[tuple(k)] = absent
-            problems[tuple(k)] = f"excluded time(s) {', '.join(f'{x:g}' for x in absent)} have no sample"
+            problems[tuple(k)] = why
+            if absent:
+                missing[tuple(k)] = absent
             continue
         applied[p] = True
         if st.window is not None:
@@ -142,6 +137,18 @@ def apply_selections(record, key_texts, time, conc, blq, exclude, terminal, *, l
     if missing:
         _warn_missing(missing, name or getattr(record, "path", None) or "(not saved)")
     return SelectionReplay(term, excl, stale, applied, fps, problems, missing)
+
+
+def _check_choice(state, fingerprint, times):
+    """(sample masks of the excluded times, why the choice cannot be applied or "", times without a sample)."""
+    if state.fingerprint != fingerprint:
+        return [], ("the choice has no fingerprint" if state.fingerprint is None else
+                    "the fingerprint differs: the data, LLOQ, BLQ rules or area method changed"), []
+    hits = [np.isclose(times, x, rtol=1e-9, atol=1e-12) for x in state.exclude]
+    absent = [x for x, h in zip(state.exclude, hits) if not h.any()]
+    if absent:
+        return hits, f"excluded time(s) {', '.join(f'{x:g}' for x in absent)} have no sample", absent
+    return hits, "", []
 
 
 def _warn_missing(missing, name):

@@ -20,7 +20,12 @@ Sources for the checks:
   (1982), Appendix D: hand values for the "zeros inside a log segment" case;
 - linearity of the integral (AUC of k*C is k*AUC, any k > 0): the extreme-magnitude cases;
 - BLQ positions and default rules (zero before and after, missing between):
-  common practice, no source.
+  common practice, no source;
+- issue 11 cases: file signatures (ZIP local header ``PK\\x03\\x04``, PKWARE APPNOTE 4.3.7, the
+  container of .xlsx per ECMA-376 Part 2; gzip ``1F 8B``, RFC 1952), Unicode byte-order marks
+  (Unicode 15, section 23.8), RFC 4180 quoting (a quoted field may hold line breaks; only CR/LF end a
+  record, so U+0085 and U+2028 never do), RFC 8259 for records (unique names, section 4; no NaN,
+  section 6; a BOM may be ignored, section 8.1), SHA-256 per FIPS 180-4 computed with ``hashlib``.
 """
 
 from __future__ import annotations
