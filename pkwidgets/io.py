@@ -154,8 +154,8 @@ def _decode(raw: bytes, path, encoding) -> str:
         ) from None
     text = text[1:] if text.startswith("\ufeff") else text
     if not text.strip():
-        raise InputDataError(f"{path} is empty (no text after the byte-order mark): expected a header line and "
-                             "one row per sample.", file=path)
+        raise InputDataError(f"{path} is empty (only a byte-order mark or blank characters): expected a header "
+                             "line and one row per sample.", file=path)
     return text
 
 
@@ -172,6 +172,9 @@ def _rows(text, path, sep):
             start = reader.line_num + 1
     except csv.Error as exc:
         raise InputDataError(_quote_message(path, start, reader.line_num, exc), file=path, line=start) from None
+    if not rows:
+        raise InputDataError(f"{path} is empty (only blank lines): expected a header line and one row per sample.",
+                             file=path)
     header_line, header = rows[0]
     return header_line, [h.strip() for h in header], rows[1:]
 
@@ -186,14 +189,18 @@ def _quote_message(path, start, end, exc):
 
 
 def _check_header(header, path, line):
-    seen = set()
-    for h in header:
+    seen = {}
+    for i, h in enumerate(header, start=1):
+        if h in seen and h == "":
+            raise InputDataError(
+                f"{path}, line {line}: columns {seen[h]} and {i} of the header have no name; name every column "
+                "(is the header line missing, or does it end with extra delimiters?).", file=path, line=line)
         if h in seen:
             raise InputDataError(
                 f"{path}, line {line}: column name {h!r} appears more than once; give each column a distinct name.",
                 file=path, line=line, column=h,
             )
-        seen.add(h)
+        seen[h] = i
 
 
 def _width_hint(header, row) -> str:
