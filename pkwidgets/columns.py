@@ -18,12 +18,12 @@ from .blq import BLQ_MARKERS, parse_concentrations
 from .errors import InputDataError
 from .io import LINE, read_study_csv, wrong_delimiter_hint
 from .keys import canonical_keys, spelling_notes
+from .numbers import describe_bad_number, parse_numbers
 
 __all__ = ["TableSource", "key_of", "terminal_windows"]
 
 _TRUE = {"1", "true", "t", "yes", "y", "blq"}
 _FALSE = {"0", "false", "f", "no", "n", ""}
-_EMPTY = {"", "na", "nan", "."}
 
 
 def key_of(row_values, by):
@@ -49,6 +49,10 @@ def terminal_windows(terminal, keys, by, P):
                                  profile=k)
     return arr
 
+
+
+def _comma_hint(raw, decimal):
+    return " It looks like a decimal comma: pass decimal=','." if decimal == "." and "," in str(raw) else ""
 
 
 class TableSource:
@@ -105,49 +109,42 @@ class TableSource:
         return self.frame[column].astype(str).str.strip()
 
     def numeric(self, column, decimal="."):
+        """A numeric column under the one strict rule of :func:`pkwidgets.numbers.parse_numbers`."""
         s = self.frame[column]
         if pd.api.types.is_numeric_dtype(s) and not pd.api.types.is_bool_dtype(s):
             return s.to_numpy(dtype=np.float64, na_value=np.nan)
-        text = self._text(column)
-        empty = text.str.lower().isin(_EMPTY) | s.isna().to_numpy()
-        if decimal != ".":
-            text = text.str.replace(decimal, ".", regex=False)
-        vals = pd.to_numeric(text.where(~empty, None), errors="coerce").to_numpy(dtype=np.float64, na_value=np.nan)
-        bad = np.isnan(vals) & ~empty.to_numpy()
+        vals, bad = parse_numbers(s, decimal=decimal)
         if bad.any():
             i = int(np.flatnonzero(bad)[0])
-            raw = s.iloc[i]
-            hint = " It looks like a decimal comma: pass decimal=','." if "," in str(raw) else ""
             raise InputDataError(
-                f"{self.at(i, column)}: {raw!r} is not a number ({int(bad.sum())} such value(s) in the column).{hint}",
+                f"{self.at(i, column)}: {describe_bad_number(s.iloc[i], decimal=decimal)} ({int(bad.sum())} such "
+                f"value(s) in the column).{_comma_hint(s.iloc[i], decimal)}",
                 file=self.file, line=self.line(i), column=column)
         return vals
 
     def concentrations(self, column, decimal="."):
+        """Numbers (strict rule), BLQ markers and ``<LLOQ`` text: values, BLQ flags, LLOQ from the text."""
         s = self.frame[column]
         n = len(s)
         if pd.api.types.is_numeric_dtype(s) and not pd.api.types.is_bool_dtype(s):
             return s.to_numpy(dtype=np.float64, na_value=np.nan), np.zeros(n, bool), np.full(n, np.nan)
-        text = self._text(column)
-        if decimal != ".":
-            text = text.str.replace(decimal, ".", regex=False)
-        # a writable copy: pandas (copy-on-write) may hand back a read-only view
-        vals = np.array(pd.to_numeric(text, errors="coerce").to_numpy(dtype=np.float64, na_value=np.nan))
+        vals, bad = parse_numbers(s, decimal=decimal)
+        vals = np.array(vals)  # writable
         blq = np.zeros(n, dtype=bool)
         lloq = np.full(n, np.nan)
-        todo = np.flatnonzero(np.isnan(vals))
+        todo = np.flatnonzero(bad)
         if todo.size:
             raw = s.iloc[todo].to_numpy(dtype=object)
-            raw = np.where(pd.isna(raw), None, raw)
-            cv, b, lq, bad = parse_concentrations(list(raw))
-            if bad.any():
-                i = int(todo[np.flatnonzero(bad)[0]])
-                hint = " It looks like a decimal comma: pass decimal=','." if "," in str(s.iloc[i]) else ""
+            _, b, lq, _ = parse_concentrations(list(np.where(pd.isna(raw), None, raw)))
+            if not b.all():  # only BLQ text is read here: numbers follow the strict rule alone
+                i = int(todo[np.flatnonzero(~b)[0]])
                 raise InputDataError(
                     f"{self.at(i, column)}: {s.iloc[i]!r} is neither a number nor a BLQ marker "
-                    f"({', '.join(BLQ_MARKERS)}, or '<' followed by the LLOQ).{hint}",
+                    f"({', '.join(BLQ_MARKERS)}, or '<' followed by the LLOQ); "
+                    f"{describe_bad_number(s.iloc[i], decimal=decimal).split(': ', 1)[-1]}."
+                    f"{_comma_hint(s.iloc[i], decimal)}",
                     file=self.file, line=self.line(i), column=column)
-            vals[todo], blq[todo], lloq[todo] = cv, b, lq
+            vals[todo], blq[todo], lloq[todo] = np.nan, True, lq
         return vals, blq, lloq
 
     def boolean(self, column):

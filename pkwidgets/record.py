@@ -1,172 +1,78 @@
-r"""The selection record: hand-made lambda-z choices, justified and replayable.
+r"""The selection record: hand-made lambda-z choices, justified, replayable and append-only.
 
 A :class:`SelectionRecord` is a JSON file kept next to an analysis.  Every
 manual choice (a terminal window, excluded sampling times, or a return to
 the automatic search) is appended as an entry with the profile key, the
-choice, a reason, an author, a UTC timestamp and a fingerprint of that
-profile's input data.  :func:`pkwidgets.nca` reads the record
-(``selections=``) and applies the latest choice of each profile, so an
-unattended re-run (papermill, CI) reproduces the parameters; a profile whose
-data no longer match the fingerprint falls back to the automatic search and
-is flagged ``selection_stale``.
+choice, a reason, an author, a UTC timestamp, a fingerprint of what the fit
+of that profile sees (:func:`profile_fingerprint`) and a hash of the entry.
+:func:`pkwidgets.nca` reads the record (``selections=``) and applies the
+latest choice of each profile, so an unattended re-run (papermill, CI)
+reproduces the parameters; a profile whose data no longer match the
+fingerprint falls back to the automatic search and is flagged
+``selection_stale`` (see :mod:`pkwidgets.replay`).
 
-File layout (``schema_version`` 1)::
+File layout (``schema_version`` 2): a header (``schema``, ``schema_version``,
+``fingerprint`` form) and ``entries``, each with ``profile`` (list of text),
+``choice`` (``{"action": "window", "start": 2.0, "end": 24.0}``,
+``{"action": "exclude", "times": [...]}`` or ``{"action": "automatic"}``),
+``state`` (``{"window": [2.0, 24.0] or null, "exclude": [...]}``), ``reason``,
+``author``, ``timestamp`` (UTC, ``2026-01-05T10:31:07Z``), ``fingerprint``
+and ``hash``; the JSON Schema is :data:`pkwidgets.record_schema.RECORD_SCHEMA`.
+``state``, the whole selection after the entry, is written for readers but
+never trusted: on reading it must equal the state derived from the choices,
+and ``hash`` (SHA-256 of the entry's canonical JSON) must match the entry.
+When an entry's fingerprint differs from the one before it for the same
+profile, the state restarts from automatic before the new choice applies.
 
-    {
-      "schema": "pkwidgets.selection-record",
-      "schema_version": 1,
-      "fingerprint": "<description of the canonical form>",
-      "entries": [
-        {"profile": ["1"],
-         "choice": {"action": "window", "start": 2.0, "end": 24.0},
-         "state": {"window": [2.0, 24.0], "exclude": []},
-         "reason": "absorption still visible at 1 h",
-         "author": "jdoe",
-         "timestamp": "2026-01-05T10:31:07Z",
-         "fingerprint": "9f86d0..."},
-        ...
-      ]
-    }
-
-``choice`` is what the person did; ``state`` is the whole selection of that
-profile after it (window or ``null`` for automatic, excluded times).  The
-record is append-only: the history stays readable and the latest entry of a
-profile is the one applied.  When an entry's fingerprint differs from the
-one before it for the same profile, the earlier selection is not carried
-over: the state restarts from automatic before the new choice is applied.
+Append-only, also across processes: :meth:`SelectionRecord.save` takes a
+lock on the file (``filelock``; a hidden ``.<name>.lock`` beside it), reads
+the file again, keeps every entry already there, appends the entries made
+since this object last read or wrote it (their states derived again after
+the others' entries), and replaces the file atomically.  Two people saving
+into one record keep both their entries.
 
 Profile keys are stored as lists of text, one item per ``by`` column
 (``str(value).strip()``), so a key typed as the integer 1 in a DataFrame and
 read as the text "1" from a CSV file name the same profile.
 
-The fingerprint (:func:`profile_fingerprint`) covers the times, the
-concentrations and the BLQ marks of the profile as given to the engine
-(times after the dose), not the dose, the LLOQ or the options.
+A path that does not exist is an error for :func:`coerce_record` (what
+``nca(selections=...)`` uses) unless ``create=True``: a mistyped path must
+not silently apply nothing.  :meth:`SelectionRecord.load` of a missing path
+gives an empty record bound to it (the explicit way to start one).
 """
 
 from __future__ import annotations
 
+import collections
 import datetime as _dt
-import hashlib
-import json
 import math
 import os
 
+import filelock
 import numpy as np
 
 from .errors import InputDataError
-from .io import write_atomic
+from .fingerprint import FINGERPRINT_FORM, canonical_key, profile_fingerprint  # noqa: F401 (re-exported)
+from .io import MissingFileError, write_atomic
+from .record_schema import (SCHEMA, SCHEMA_VERSION, check_new_entry, checked_before, derive_state, dump_record,
+                            entry_hash, mark_checked, read_record_file)
+from .replay import SelectionReplay, apply_selections  # noqa: F401 (re-exported)
 
 __all__ = [
     "SelectionRecord",
     "SelectionState",
+    "SelectionReplay",
     "profile_fingerprint",
     "canonical_key",
+    "coerce_record",
+    "apply_selections",
     "SCHEMA",
     "SCHEMA_VERSION",
+    "FINGERPRINT_FORM",
 ]
 
-SCHEMA = "pkwidgets.selection-record"
-SCHEMA_VERSION = 1
-FINGERPRINT_FORM = (
-    "SHA-256 (hex) of UTF-8 text: one line per sample with a time, sorted by time; "
-    "each line 'time;conc;blq' with time and conc as float64 in float.hex() form "
-    "(-0.0 written as 0.0, NaN as 'nan'), conc written 'blq' when the sample is BLQ, "
-    "blq as 1 or 0; lines joined by '\\n'; samples without a time are left out"
-)
-
-
-def _hex(x: float) -> str:
-    x = float(x)
-    if math.isnan(x):
-        return "nan"
-    return (x + 0.0).hex()
-
-
-def profile_fingerprint(time, conc, blq=None) -> str:
-    r"""SHA-256 fingerprint of one profile's input data.
-
-    Parameters
-    ----------
-    time, conc : array_like, 1-D
-        Sampling times after the dose and concentrations (NaN = missing);
-        NaN-padded entries (no time) are ignored.
-    blq : array_like of bool, optional
-        True where the sample is below the LLOQ (its conc value is then not
-        part of the fingerprint, as the engine ignores it).
-
-    Returns
-    -------
-    str
-        64 hexadecimal characters.
-
-    Notes
-    -----
-    Canonical form: one line per sample that has a time, sorted by time;
-    each line is ``time;conc;blq`` where numbers are written with
-    :meth:`float.hex` (exact for float64, independent of platform and
-    locale), ``-0.0`` as ``0.0``, NaN as ``nan``, a BLQ sample's conc as
-    ``blq`` and the BLQ mark as ``1``/``0``.  Lines are joined by ``\n``,
-    encoded as UTF-8 and hashed with SHA-256 (FIPS 180-4).  The order of
-    the input rows does not change the fingerprint; any change of a time,
-    a concentration or a BLQ mark does.
-
-    Examples
-    --------
-    >>> a = profile_fingerprint([0, 1, 2], [0.0, 5.0, 2.5])
-    >>> a == profile_fingerprint([2, 0, 1], [2.5, 0.0, 5.0])
-    True
-    >>> a == profile_fingerprint([0, 1, 2], [0.0, 5.0, 2.6])
-    False
-    """
-    t = np.asarray(time, dtype=np.float64).ravel()
-    c = np.asarray(conc, dtype=np.float64).ravel()
-    if t.shape != c.shape:
-        raise ValueError(f"time has {t.size} values but conc has {c.size}; they must match.")
-    b = np.zeros(t.shape, dtype=bool) if blq is None else np.asarray(blq, dtype=bool).ravel()
-    if b.shape != t.shape:
-        raise ValueError(f"blq has {b.size} values but time has {t.size}; they must match.")
-    keep = ~np.isnan(t)
-    order = np.argsort(t[keep], kind="stable")
-    tk, ck, bk = t[keep][order], c[keep][order], b[keep][order]
-    lines = [
-        f"{_hex(ti)};{'blq' if bi else _hex(ci)};{int(bi)}" for ti, ci, bi in zip(tk, ck, bk)
-    ]
-    return hashlib.sha256("\n".join(lines).encode("utf-8")).hexdigest()
-
-
-def canonical_key(key) -> tuple:
-    """Profile key as a tuple of text, one item per ``by`` column.
-
-    Parameters
-    ----------
-    key : scalar, or list, tuple or 1-D array of scalars
-        One value per ``by`` column; a scalar is a one-column key.
-
-    Returns
-    -------
-    tuple of str
-        ``str(value).strip()`` of each item (NumPy scalars first turned into
-        Python ones), so the integer ``1`` of a DataFrame and the text ``"1"``
-        read from a CSV file name the same profile.
-
-    Examples
-    --------
-    >>> canonical_key(1)
-    ('1',)
-    >>> canonical_key(("1", " A"))
-    ('1', 'A')
-    """
-    if isinstance(key, (list, tuple, np.ndarray)):
-        items = np.ravel(key).tolist() if isinstance(key, np.ndarray) else key
-    else:
-        items = (key,)
-    out = []
-    for v in items:
-        if isinstance(v, (np.generic,)):
-            v = v.item()
-        out.append(str(v).strip())
-    return tuple(out)
+#: Seconds :meth:`SelectionRecord.save` waits for another writer's lock before giving up.
+LOCK_TIMEOUT = 60.0
 
 
 class SelectionState(dict):
@@ -239,6 +145,8 @@ class SelectionRecord:
     ----------
     path : str or os.PathLike, optional
         File the record is saved to by :meth:`save` (and was loaded from).
+    entries : list of dict, optional
+        Entries already read (see :meth:`load`); they count as on disk.
 
     Examples
     --------
@@ -256,6 +164,8 @@ class SelectionRecord:
     def __init__(self, path=None, entries=None):
         self.path = None if path is None else os.fspath(path)
         self.entries: list[dict] = list(entries or [])
+        #: how many leading entries are known to be in the file (read from it or written to it)
+        self._on_disk = len(self.entries)
         # profile key tuple -> positions of its entries in ``entries``, oldest first; built
         # incrementally, so appending is O(1) amortised and loading is linear in the entries
         self._by_key: dict[tuple, list[int]] = {}
@@ -279,76 +189,95 @@ class SelectionRecord:
         Raises
         ------
         InputDataError
-            If the file cannot be read, is not JSON, or is not a selection
-            record of a known schema version.  The file is left untouched.
+            If the path is a folder or cannot be read, or the file is not a
+            valid selection record (see :mod:`pkwidgets.record_schema`: the
+            message names the entry and field).  The file is left untouched.
         """
         path = os.fspath(path)
-        if not os.path.exists(path):
-            return cls(path)
-        try:
-            with open(path, "rb") as fh:
-                raw = fh.read()
-        except OSError as exc:
-            raise InputDataError(f"selection record {path} cannot be read ({exc.strerror}); check the path "
-                                 "and its permissions.", file=path) from None
-        try:
-            doc = json.loads(raw.decode("utf-8"))
-        except (UnicodeDecodeError, json.JSONDecodeError) as exc:
-            where = f" at line {exc.lineno}, column {exc.colno}" if isinstance(exc, json.JSONDecodeError) else ""
-            raise InputDataError(
-                f"selection record {path} is not valid JSON{where}; it was not changed. Restore it from version "
-                "control or a backup, or move it aside to start a new record.", file=path) from None
-        if not isinstance(doc, dict) or doc.get("schema") != SCHEMA:
-            raise InputDataError(f"{path} is not a pkwidgets selection record (missing \"schema\": \"{SCHEMA}\"); "
-                                 "it was not changed.", file=path)
-        version = doc.get("schema_version")
-        if version != SCHEMA_VERSION:
-            raise InputDataError(f"selection record {path} has schema_version {version!r}; this version of "
-                                 f"pkwidgets reads version {SCHEMA_VERSION}. It was not changed.", file=path)
-        entries = doc.get("entries")
-        if not isinstance(entries, list):
-            raise InputDataError(f"selection record {path}: \"entries\" must be a list; it was not changed.",
-                                 file=path)
-        for i, e in enumerate(entries):
-            problem = _entry_problem(e)
-            if problem:
-                raise InputDataError(f"selection record {path}, entry {i}: {problem}; the file was not changed.",
-                                     file=path)
-        return cls(path, entries)
+        entries = read_record_file(path)
+        return cls(path, [] if entries is None else entries)
 
     def to_json(self) -> str:
         """The file text: the schema header and every entry, indented JSON ending in a newline."""
-        doc = {"schema": SCHEMA, "schema_version": SCHEMA_VERSION, "fingerprint": FINGERPRINT_FORM,
-               "entries": self.entries}
-        return json.dumps(doc, indent=1, ensure_ascii=False) + "\n"
+        return dump_record(self.entries)
 
     def save(self, path=None) -> str:
-        """Write the record atomically (temporary file, then rename); return the path."""
+        """Merge this record's new entries into the file, under a lock; return the path.
+
+        The file is read again under the lock: entries already in it are kept
+        as they are, entries made since this object last read or wrote the
+        file are appended (states derived again after them), and the file is
+        replaced atomically (:func:`pkwidgets.io.write_atomic`).  Afterwards
+        :attr:`entries` holds the whole merged record.
+
+        Raises
+        ------
+        InputDataError
+            If the file on disk is not a valid record, has lost entries this
+            object read from it (edited by hand or replaced), or stays locked
+            by another writer for :data:`LOCK_TIMEOUT` seconds.  Nothing is
+            written then.
+        """
         path = self.path if path is None else os.fspath(path)
         if path is None:
             raise ValueError("this record has no file yet: pass save(path) or create it with SelectionRecord.load(path).")
-        write_atomic(path, self.to_json())
-        self.path = path
+        if path != self.path:
+            self._on_disk = 0  # another file: every entry is new to it
+        try:
+            with filelock.FileLock(_lock_path(path), timeout=LOCK_TIMEOUT, poll_interval=0.005):
+                merged = self._merge(path)
+                write_atomic(path, dump_record(merged))
+        except filelock.Timeout:
+            raise InputDataError(f"selection record {path} is locked by another writer (lock file "
+                                 f"{_lock_path(path)}) for more than {LOCK_TIMEOUT:g} s; nothing was written. Try "
+                                 "again; if no one else is saving, delete the lock file.", file=path) from None
+        self.entries, self.path, self._on_disk = merged, path, len(merged)
         return path
 
+    def _merge(self, path) -> list:
+        """Entries on disk, then this object's new entries with states derived after them."""
+        disk = read_record_file(path) or []
+        known = collections.Counter(e.get("hash") or entry_hash(e) for e in self.entries[: self._on_disk])
+        lost = known - collections.Counter(e["hash"] for e in disk)
+        if lost:
+            raise InputDataError(
+                f"selection record {path} no longer holds {sum(lost.values())} entr(y/ies) that were in it when it "
+                "was read (edited by hand, replaced or moved?); nothing was written, as a record only grows. "
+                "Restore the file, or save this record to a new path.", file=path)
+        merged = list(disk)
+        last = {}
+        for e in merged:
+            last[tuple(e["profile"])] = e
+        for e in self.entries[self._on_disk:]:
+            if not checked_before(e):
+                check_new_entry(dict(e, hash="0" * 64), path, len(merged))
+            key = tuple(e["profile"])
+            prev = last.get(key)
+            e = dict(e, state=derive_state(prev and prev["state"], prev and prev["fingerprint"], e["choice"],
+                                           e["fingerprint"]))
+            e["hash"] = entry_hash(e)
+            mark_checked(e)
+            merged.append(e)
+            last[key] = e
+        return merged
+
     # -------------------------------------------------------------- choices
-    def _append(self, key, choice, state_fn, reason, author, fingerprint):
+    def _append(self, key, choice, reason, author, fingerprint):
         k = canonical_key(key)
         entry_fp = None if fingerprint is None else str(fingerprint)
-        prev = self.state(k)
-        if prev is None or prev.fingerprint != entry_fp:
-            base = {"window": None, "exclude": []}
-        else:
-            base = {"window": prev.get("window"), "exclude": list(prev.get("exclude", []))}
+        pos = self._positions().get(k)
+        prev = self.entries[pos[-1]] if pos else None
         entry = {
             "profile": list(k),
             "choice": choice,
-            "state": state_fn(base),
+            "state": derive_state(prev and prev["state"], prev and prev.get("fingerprint"), choice, entry_fp),
             "reason": _reason(reason),
             "author": _author(author),
             "timestamp": _now(),
             "fingerprint": entry_fp,
         }
+        entry["hash"] = entry_hash(entry)
+        mark_checked(entry)
         self.entries.append(entry)
         return entry
 
@@ -363,27 +292,16 @@ class SelectionRecord:
         e = _finite(end, "window end", key)
         if not e > s:
             raise ValueError(f"window end ({e!r}) must be after its start ({s!r}) for profile {_label(key)}.")
-
-        def apply(st):
-            st["window"] = [s, e]
-            return st
-
-        return self._append(key, {"action": "window", "start": s, "end": e}, apply, reason, author, fingerprint)
+        return self._append(key, {"action": "window", "start": s, "end": e}, reason, author, fingerprint)
 
     def set_exclusions(self, key, times, reason, author=None, *, fingerprint=None) -> dict:
         """Leave the samples at ``times`` out of the lambda-z fit of ``key`` (empty: none)."""
         ts = sorted({_finite(x, "excluded time", key) for x in np.ravel(np.asarray(times, dtype=object))})
-
-        def apply(st):
-            st["exclude"] = ts
-            return st
-
-        return self._append(key, {"action": "exclude", "times": ts}, apply, reason, author, fingerprint)
+        return self._append(key, {"action": "exclude", "times": ts}, reason, author, fingerprint)
 
     def reset(self, key, reason, author=None, *, fingerprint=None) -> dict:
         """Return profile ``key`` to the automatic search without exclusions."""
-        return self._append(key, {"action": "automatic"}, lambda st: {"window": None, "exclude": []},
-                            reason, author, fingerprint)
+        return self._append(key, {"action": "automatic"}, reason, author, fingerprint)
 
     # --------------------------------------------------------------- reading
     def state(self, key):
@@ -412,6 +330,11 @@ class SelectionRecord:
         return f"SelectionRecord(path={self.path!r}, profiles={len(self.states())}, entries={len(self.entries)})"
 
 
+def _lock_path(path) -> str:
+    folder, name = os.path.split(os.path.abspath(path))
+    return os.path.join(folder, f".{name}.lock")
+
+
 def _state_of(entry) -> SelectionState:
     """The :class:`SelectionState` an entry leaves its profile in."""
     st = SelectionState(entry["state"])
@@ -427,92 +350,37 @@ def _label(key):
     return k[0] if len(k) == 1 else "/".join(k)
 
 
-def _entry_problem(e):
-    if not isinstance(e, dict):
-        return "an entry must be an object"
-    for name in ("profile", "choice", "state", "reason", "author", "timestamp"):
-        if name not in e:
-            return f"field {name!r} is missing"
-    if not isinstance(e["profile"], list) or not all(isinstance(x, str) for x in e["profile"]):
-        return "'profile' must be a list of text"
-    st = e["state"]
-    if not isinstance(st, dict) or "window" not in st or "exclude" not in st:
-        return "'state' must hold 'window' and 'exclude'"
-    w = st["window"]
-    if w is not None and not (isinstance(w, list) and len(w) == 2 and all(_is_time(x) for x in w) and w[1] > w[0]):
-        return f"'state.window' must be null or [start, end] with finite times, end after start; got {w!r}"
-    if not isinstance(st["exclude"], list) or not all(_is_time(x) for x in st["exclude"]):
-        return f"'state.exclude' must be a list of finite times; got {st['exclude']!r}"
-    if not isinstance(e["reason"], str) or not e["reason"].strip():
-        return "'reason' must be a non-empty text"
-    fp = e.get("fingerprint")
-    if fp is not None and not (isinstance(fp, str) and len(fp) == 64
-                               and all(ch in "0123456789abcdef" for ch in fp)):
-        return "'fingerprint' must be 64 lower-case hexadecimal characters or null"
-    return ""
-
-
-def _is_time(x):
-    """A JSON number that is a finite time (not a boolean, NaN or infinity)."""
-    return isinstance(x, (int, float)) and not isinstance(x, bool) and math.isfinite(x)
-
-
-def coerce_record(selections) -> SelectionRecord:
-    """Accept a SelectionRecord or a path (loaded; a missing file is an empty record)."""
-    if isinstance(selections, SelectionRecord):
-        return selections
-    if isinstance(selections, (str, os.PathLike)):
-        return SelectionRecord.load(selections)
-    raise TypeError(f"selections must be a SelectionRecord or the path of a record file; got "
-                    f"{type(selections).__name__}.")
-
-
-def apply_selections(record: SelectionRecord, key_texts, time, conc, blq, exclude, terminal):
-    """Apply the latest choice of each recorded profile to the engine inputs.
+def coerce_record(selections, *, create=False) -> SelectionRecord:
+    """A SelectionRecord from a record or the path of a record file.
 
     Parameters
     ----------
-    record : SelectionRecord
-    key_texts : list of tuple of str
-        Canonical key (:func:`canonical_key`) of each profile, in row order.
-    time, conc, blq, exclude : ndarray, shape (profiles, samples)
-        Engine inputs (times after the dose; ``exclude`` is copied, not changed).
-    terminal : "auto", (start, end) or ndarray (profiles, 2)
+    selections : SelectionRecord, str or os.PathLike
+    create : bool
+        What a path that does not exist means: False (default) is an error,
+        so that a mistyped path in an unattended run does not silently apply
+        nothing; True starts a new, empty record there (written on the first
+        save).
 
-    Returns
-    -------
-    terminal : ndarray (profiles, 2)
-        NaN rows are automatic.
-    exclude : ndarray of bool
-    stale : ndarray of bool (profiles,)
-        Recorded profiles whose data no longer match the fingerprint (or whose
-        entry has none): they are set to automatic without exclusions.
-    applied : ndarray of bool (profiles,)
-        Profiles whose recorded choice was applied.
-    fingerprints : list of str
-        Fingerprint of every profile's data.
+    Raises
+    ------
+    MissingFileError
+        The path does not exist and ``create`` is False (an InputDataError
+        and a FileNotFoundError, naming the path).
+    InputDataError
+        The file is not a valid record (see :meth:`SelectionRecord.load`).
+    TypeError
+        ``selections`` is neither a record nor a path.
     """
-    P = time.shape[0]
-    term = np.full((P, 2), np.nan)
-    if not (terminal is None or (isinstance(terminal, str) and terminal == "auto")):
-        term[:] = np.broadcast_to(np.asarray(terminal, dtype=np.float64), (P, 2))
-    excl = np.array(exclude, dtype=bool, copy=True)
-    stale = np.zeros(P, dtype=bool)
-    applied = np.zeros(P, dtype=bool)
-    fps = [profile_fingerprint(time[p], conc[p], blq[p]) for p in range(P)]
-    states = record.states()
-    for p, k in enumerate(key_texts):
-        st = states.get(tuple(k))
-        if st is None:
-            continue
-        term[p] = np.nan
-        excl[p] = False
-        if st.fingerprint != fps[p]:
-            stale[p] = True
-            continue
-        applied[p] = True
-        if st.window is not None:
-            term[p] = st.window
-        for x in st.exclude:
-            excl[p] |= np.isclose(time[p], x, rtol=1e-9, atol=1e-12)
-    return term, excl, stale, applied, fps
+    if isinstance(selections, SelectionRecord):
+        return selections
+    if isinstance(selections, (str, os.PathLike)):
+        path = os.fspath(selections)
+        if not create and not os.path.lexists(path):
+            raise MissingFileError(
+                f"selection record {path} does not exist, so no recorded choice could be applied; check the path "
+                f"(working folder: {os.getcwd()}). To start a new record there on purpose, pass "
+                "selections_new=True (coerce_record(path, create=True)).", file=path)
+        return SelectionRecord.load(path)
+    raise TypeError(f"selections must be a SelectionRecord or the path of a record file; got "
+                    f"{type(selections).__name__}.")

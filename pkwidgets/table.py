@@ -28,7 +28,7 @@ from .profile import ordered_codes
 from .qc import FLAGS, STATUS_REASONS, SampleStatus, flag_message
 from .record import apply_selections, canonical_key, coerce_record
 from .result import SAMPLE_COLUMNS, NCAResult, ProfileArrays
-from .units import StudyUnits
+from .units import StudyUnits, coerce_units
 
 __all__ = ["nca", "nca_frame", "NCATable"]
 
@@ -51,8 +51,8 @@ class StudySpec:
 
 def nca(data, *, by, options=None, columns=None, time="time", conc="conc", dose="dose", blq=None, lloq=None,
         dose_time=None, units=None, route="extravascular", duration=None, tau=None, auc_method="linear",
-        terminal="auto", exclude=None, blq_rules=None, partial=(), qc=None, selections=None, occasion=None,
-        sep=",", decimal=".", encoding="utf-8"):
+        terminal="auto", exclude=None, blq_rules=None, partial=(), qc=None, selections=None, selections_new=False,
+        occasion=None, sep=",", decimal=".", encoding="utf-8"):
     """NCA of every profile in a long-format study table.
 
     Parameters
@@ -99,7 +99,11 @@ def nca(data, *, by, options=None, columns=None, time="time", conc="conc", dose=
         ``exclude`` for it.  A profile whose data no longer match the
         recorded fingerprint is analysed automatically and flagged
         ``selection_stale``.  Recorded profiles absent from the data are named
-        in a warning and in ``settings["selections"]["unmatched"]``.
+        in a warning and in ``settings["selections"]["unmatched"]``.  A path
+        that does not exist is an error (a mistyped name would otherwise apply
+        nothing) unless ``selections_new=True``.
+    selections_new : bool
+        Start a new, empty record when ``selections`` names no file yet.
     occasion : str, optional
         A ``by`` column ordering dosing occasions; with ``tau`` each later
         occasion gets ARAUC and ARCMAX against the first one.
@@ -125,6 +129,8 @@ def nca(data, *, by, options=None, columns=None, time="time", conc="conc", dose=
                        route=route, auc_method=auc_method, blq_rules=blq_rules, partial=partial, qc=qc,
                        roles={"time": time, "conc": conc, "dose": dose, "blq": blq, "lloq": lloq,
                               "dose_time": dose_time, "duration": duration, "tau": tau})
+    if selections is not None:
+        selections = coerce_record(selections, create=selections_new)
     if is_dask_frame(data):  # scale-out: the same function on each partition, profiles kept whole
         return nca_dask(data, spec, nca_frame, selections=selections)
     return nca_frame(data, spec, selections=selections, sep=sep, decimal=decimal, encoding=encoding)
@@ -155,7 +161,7 @@ def _study_spec(by, options, columns, units, *, roles, terminal, exclude, **rule
         raise TypeError(f"exclude must be None, a column name or a dict of profile -> times; got "
                         f"{type(exclude).__name__}.")
     opts = build_options(options, terminal=terminal, **numbers, **rules)
-    su = None if units is None else (units if isinstance(units, StudyUnits) else StudyUnits(**units))
+    su = coerce_units(units, needs_dose=cols.dose is not None or "dose" in amounts)
     return StudySpec(by=by, columns=cols, options=opts, amounts=amounts, exclude_times=exclude_times, units=su,
                      dose_required=cols.dose is not None and cols.dose != "dose")
 
@@ -179,7 +185,7 @@ def nca_frame(data, spec: StudySpec, *, selections=None, sep=",", decimal=".", e
     arrays["exclude"] = pad.array(src.exclusions(cols.exclude or spec.exclude_times, prof, keys, values["time"], by))
     arrays["terminal"] = terminal_windows(spec.options.terminal, keys, by, len(keys))
     key_texts = [canonical_key(tuple(r)) for r in keys.itertuples(index=False)]
-    sel = _apply_record(selections, key_texts, arrays, src.name) if selections is not None else None
+    sel = _apply_record(selections, key_texts, arrays, src.name, spec.options) if selections is not None else None
     res = _run_engine(arrays, per_profile, spec.options, pad, src, keys, cols.conc)
     res.flags["times_sorted"] = res.flags["times_sorted"] | pad.unsorted(values["time"], prof, values["keep"])
     if sel is not None:
@@ -245,11 +251,16 @@ def _per_profile_values(src: TableSource, spec: StudySpec, prof, keys, decimal) 
     return out
 
 
-def _apply_record(selections, key_texts, arrays, source_name) -> dict:
-    """Recorded hand choices replace the window and exclusions of their profiles (fingerprint permitting)."""
-    rec = coerce_record(selections)
-    term, excl, stale, applied, fps = apply_selections(rec, key_texts, arrays["time"], arrays["conc"],
-                                                       arrays["blq"], arrays["exclude"], arrays["terminal"])
+def _apply_record(rec, key_texts, arrays, source_name, options) -> dict:
+    """Recorded hand choices replace the window and exclusions of their profiles (fingerprint permitting).
+
+    The fingerprint covers what the fit sees: times, values, BLQ samples with
+    their LLOQ, the BLQ rules and the area method (:mod:`pkwidgets.fingerprint`).
+    """
+    replay = apply_selections(rec, key_texts, arrays["time"], arrays["conc"], arrays["blq"], arrays["exclude"],
+                              arrays["terminal"], lloq=arrays["lloq"], blq_rules=options.blq_rules,
+                              auc_method=options.auc_method)
+    term, excl, stale, applied, fps = replay
     arrays["terminal"], arrays["exclude"] = term, excl
     recorded = set(rec.states())
     unmatched = sorted(recorded - {tuple(k) for k in key_texts})
@@ -261,7 +272,7 @@ def _apply_record(selections, key_texts, arrays, source_name) -> dict:
                       f"not in {source_name} ({names}); they were not applied.{hint}", stacklevel=4)
     return {"path": rec.path, "applied": [key_texts[p] for p in np.flatnonzero(applied)],
             "stale": [key_texts[p] for p in np.flatnonzero(stale)], "fingerprints": fps, "unmatched": unmatched,
-            "stale_mask": stale}
+            "problems": {"/".join(k): v for k, v in replay.problems.items()}, "stale_mask": stale}
 
 
 def _run_engine(arrays, per_profile, options, pad, src, keys, conc_column):

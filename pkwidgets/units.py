@@ -10,6 +10,7 @@ than mg/(h*ng/mL).
 from __future__ import annotations
 
 import re
+from collections.abc import Mapping
 from dataclasses import dataclass
 from functools import lru_cache
 
@@ -18,7 +19,11 @@ import pint
 from .errors import UnitError
 from .parameters import PARAMETERS
 
-__all__ = ["StudyUnits", "parameter_unit", "ureg"]
+__all__ = ["StudyUnits", "coerce_units", "parameter_unit", "ureg", "UNIT_ROLES"]
+
+#: The roles a study declares units for, in the order StudyUnits takes them.
+UNIT_ROLES = ("time", "conc", "dose")
+_UNSET = object()
 
 ureg = pint.UnitRegistry()
 
@@ -34,7 +39,7 @@ def _unit(text: str, role: str):
         ) from None
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, init=False)
 class StudyUnits:
     """The declared units of a study.
 
@@ -47,6 +52,10 @@ class StudyUnits:
     dose : str or None
         Unit of doses, e.g. ``"mg"`` or ``"mg/kg"``; None if no dose is given.
 
+    Time and concentration have no default: a unit left out is an error
+    naming it (a default concentration unit would make CL/F wrong by the
+    ratio of the units), and a misspelt name gets a suggestion.
+
     Examples
     --------
     >>> u = StudyUnits("h", "ng/mL", "mg")
@@ -58,11 +67,27 @@ class StudyUnits:
     Traceback (most recent call last):
     ...
     pkwidgets.errors.UnitError: Clearance from dose unit 'mg' and concentration unit 'nmol/L' has dimension ...
+    >>> StudyUnits(time="h", dose="mg")
+    Traceback (most recent call last):
+    ...
+    pkwidgets.errors.UnitError: The 'units' option must give the time and concentration units together (and the dose unit when doses are used); 'conc' is missing (got time='h', dose='mg'). Add e.g. 'conc': 'ng/mL', or pass units=None.
     """
 
-    time: str = "h"
-    conc: str = "ng/mL"
+    time: str
+    conc: str
     dose: str | None = None
+
+    def __init__(self, time=_UNSET, conc=_UNSET, dose=None, **unknown):
+        if unknown:
+            _unknown_roles(unknown)
+        given = {"time": time, "conc": conc, "dose": dose}
+        missing = [r for r in ("time", "conc") if given[r] is _UNSET]
+        if missing:
+            _missing_roles(missing, {k: v for k, v in given.items() if v is not _UNSET and v is not None})
+        object.__setattr__(self, "time", time)
+        object.__setattr__(self, "conc", conc)
+        object.__setattr__(self, "dose", dose)
+        self.__post_init__()
 
     def __post_init__(self):
         if self.time is None or self.conc is None:
@@ -88,6 +113,76 @@ class StudyUnits:
         """
         kind = "auc" if code.startswith("AUCINT") else PARAMETERS[code].unit_kind
         return _kind_unit(kind, self.time, self.conc, self.dose)
+
+
+def _unknown_roles(unknown):
+    from .options import check_choice
+
+    for name in unknown:
+        try:
+            check_choice("A key of the 'units' option", name, UNIT_ROLES)
+        except ValueError as exc:
+            raise UnitError(f"{exc} Units are declared as {{'time': ..., 'conc': ..., 'dose': ...}}.") from None
+
+
+def _missing_roles(missing, given):
+    got = ", ".join(f"{k}={v!r}" for k, v in given.items()) or "nothing"
+    example = {"time": "'time': 'h'", "conc": "'conc': 'ng/mL'", "dose": "'dose': 'mg'"}
+    names = " and ".join(repr(m) for m in missing)
+    raise UnitError(
+        "The 'units' option must give the time and concentration units together (and the dose unit when doses "
+        f"are used); {names} {'is' if len(missing) == 1 else 'are'} missing (got {got}). Add e.g. "
+        f"{', '.join(example[m] for m in missing)}, or pass units=None.")
+
+
+def coerce_units(units, *, needs_dose=False) -> StudyUnits | None:
+    """Validate the ``units`` option of :func:`pkwidgets.nca` and friends.
+
+    Parameters
+    ----------
+    units : None, StudyUnits or mapping
+        ``{"time": ..., "conc": ..., "dose": ...}``.  Either no units
+        (None) or all that the analysis needs: time and concentration always,
+        and the dose unit when ``needs_dose``.
+    needs_dose : bool
+        True when the analysis uses doses (a dose column or amount): then a
+        missing dose unit is an error, since CL, V and dose-normalised values
+        would otherwise be reported without a unit.
+
+    Returns
+    -------
+    StudyUnits or None
+
+    Raises
+    ------
+    UnitError
+        A missing role (named), a misspelt key (with a suggestion), an unknown
+        or ill-fitting unit.
+    TypeError
+        ``units`` is neither None, a StudyUnits nor a mapping.
+
+    Examples
+    --------
+    >>> coerce_units({"time": "h", "conc": "ng/mL"}).conc
+    'ng/mL'
+    >>> coerce_units({"tme": "h", "conc": "ng/mL", "dose": "mg"})
+    Traceback (most recent call last):
+    ...
+    pkwidgets.errors.UnitError: A key of the 'units' option must be one of 'time', 'conc', 'dose'; got 'tme'. Did you mean 'time'? Units are declared as {'time': ..., 'conc': ..., 'dose': ...}.
+    """
+    if units is None:
+        return None
+    if isinstance(units, Mapping):
+        bad = [k for k in units if not isinstance(k, str) or k not in UNIT_ROLES]
+        if bad:
+            _unknown_roles(bad)
+        units = StudyUnits(**units)
+    elif not isinstance(units, StudyUnits):
+        raise TypeError(f"The 'units' option must be None, a StudyUnits or a dict like {{'time': 'h', 'conc': "
+                        f"'ng/mL', 'dose': 'mg'}}; got {type(units).__name__}.")
+    if needs_dose and units.dose is None:
+        _missing_roles(["dose"], {"time": units.time, "conc": units.conc})
+    return units
 
 
 def parameter_unit(code: str, units: StudyUnits) -> tuple[str, float]:

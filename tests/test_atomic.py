@@ -188,6 +188,12 @@ def test_selection_record_save_killed_mid_write_keeps_old_record(tmp_path):
     assert path.read_bytes() == old_bytes
     again = SelectionRecord.load(path)  # RFC 8259 JSON that loads as a record
     assert again.entries == before.entries
+    # the killed writer held the record's lock; POSIX releases a process's locks when it dies (fcntl(2)), so
+    # the next writer saves without waiting for the lock timeout, and keeps every entry
+    again.set_window("U1", 4, 8, "chosen after the crash", author="analyst", fingerprint=before.entries[0]["fingerprint"])
+    again.save()
+    assert [e["reason"] for e in SelectionRecord.load(path).entries][-1] == "chosen after the crash"
+    assert len(SelectionRecord.load(path).entries) == len(before.entries) + 1
 
 
 @pytest.mark.slow

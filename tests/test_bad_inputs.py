@@ -20,7 +20,12 @@ Sources for the checks:
   (1982), Appendix D: hand values for the "zeros inside a log segment" case;
 - linearity of the integral (AUC of k*C is k*AUC, any k > 0): the extreme-magnitude cases;
 - BLQ positions and default rules (zero before and after, missing between):
-  common practice, no source.
+  common practice, no source;
+- issue 11 cases: file signatures (ZIP local header ``PK\\x03\\x04``, PKWARE APPNOTE 4.3.7, the
+  container of .xlsx per ECMA-376 Part 2; gzip ``1F 8B``, RFC 1952), Unicode byte-order marks
+  (Unicode 15, section 23.8), RFC 4180 quoting (a quoted field may hold line breaks; only CR/LF end a
+  record, so U+0085 and U+2028 never do), RFC 8259 for records (unique names, section 4; no NaN,
+  section 6; a BOM may be ignored, section 8.1), SHA-256 per FIPS 180-4 computed with ``hashlib``.
 """
 
 from __future__ import annotations
@@ -228,6 +233,35 @@ REJECTED = [
     Rejected("tau-zero", frame(), {"tau": 0}, ValueError, r"'tau' option must be a finite number > 0"),
     Rejected("partial-reversed", frame(), {"partial": [(4, 2)]}, ValueError,
              r"partial interval AUCINT_4-2: need 0 <= start < end"),
+    # --- issue 11: file types and encodings (signatures: PKWARE APPNOTE, RFC 1952, ISO 32000; Unicode BOMs) ---
+    Rejected("utf16-file", csv_text().encode("utf-16"), {}, InputDataError,
+             F + r" is UTF-16 text \(it starts with a UTF-16 byte-order mark\).*encoding='utf-16'"),
+    Rejected("xlsx-workbook", b"PK\x03\x04\x14\x00\x06\x00" + bytes(60), {}, InputDataError,
+             F + r" is a ZIP archive \(an Excel \.xlsx or OpenDocument \.ods workbook\?\), not a CSV text file"),
+    Rejected("gzip-file", b"\x1f\x8b\x08\x00" + bytes(30), {}, InputDataError, F + r" is gzip-compressed"),
+    Rejected("nul-bytes", csv_text().replace("\n1,4", "\n1,\x004", 1), {}, InputDataError, F + r" holds NUL bytes"),
+    # --- issue 11: CSV quoting (RFC 4180) ---
+    Rejected("unclosed-quote", HEADER + '1,0,0,100\n1,1,"5,100\n1,2,8,100\n', {}, InputDataError,
+             F + r", line 3: a field opened with a double quote is never closed"),
+    Rejected("text-after-closing-quote", HEADER + '1,0,0,100\n1,1,"5"0,100\n', {}, InputDataError,
+             F + r", line 3: ',' expected after '\"'"),
+    Rejected("trailing-delimiter", HEADER + "1,0,0,100,\n", {}, InputDataError,
+             F + r", line 2: expected 4 fields as in the header, found 5\. The extra fields are empty"),
+    Rejected("wrong-field-count-after-quoted-newline", HEADER + '1,0,"0",100\n1,1,"5\n",100\n1,2,8\n', {},
+             InputDataError, F + r", line 5: expected 4 fields as in the header, found 3"),
+    Rejected("u0085-splits-nothing", HEADER + "1,0,0,100\n1,1,5,100\x851,2,8,100\n", {}, InputDataError,
+             F + r", line 3: expected 4 fields as in the header, found 7"),
+    # --- issue 11: units all or none, keys spelt right ---
+    Rejected("units-partial-no-conc", csv_text(), {"units": {"time": "h", "dose": "mg"}}, UnitError,
+             r"'conc' is missing \(got time='h', dose='mg'\)"),
+    Rejected("units-partial-only-dose", csv_text(), {"units": {"dose": "mg"}}, UnitError,
+             r"'time' and 'conc' are missing"),
+    Rejected("units-misspelt-time", csv_text(), {"units": {"tme": "h", "conc": "ng/mL", "dose": "mg"}}, UnitError,
+             r"A key of the 'units' option must be one of 'time', 'conc', 'dose'; got 'tme'\. Did you mean 'time'\?"),
+    Rejected("units-misspelt-conc", csv_text(), {"units": {"time": "h", "cnc": "ng/mL", "dose": "mg"}}, UnitError,
+             r"got 'cnc'\. Did you mean 'conc'\?"),
+    Rejected("units-not-a-dict", csv_text(), {"units": ["h", "ng/mL", "mg"]}, TypeError,
+             r"argument after \*\* must be a mapping|The 'units' option must be None"),
 ]
 
 
@@ -288,6 +322,20 @@ def _check_blq_after_tlast(res):
     assert res.loc[r1, "AUCALL"].iloc[0] == pytest.approx(ref.loc[r1, "AUCLST"].iloc[0] + 2.4, rel=1e-12)
 
 
+def _with_note(notes, default="ok"):
+    """The clean study with a 'note' column: text per (subject, time), ``default`` elsewhere."""
+    body = "".join(f"{s},{t},{c},{d},{notes.get((s, t), default)}\n" for s, t, c, d in GOOD_ROWS)
+    return HEADER.replace("dose", "dose,note") + body
+
+
+def _check_lines(res, last_line):
+    # every input row is one account row, numbered by the line it starts on (RFC 4180 records)
+    lines = res.rows["line"].tolist()
+    assert lines[-1] == last_line and len(lines) == len(GOOD_ROWS) and lines == sorted(lines)
+    ref = nca(frame(), by="subject")
+    np.testing.assert_array_equal(res["AUCLST"].to_numpy(), ref["AUCLST"].to_numpy())
+
+
 FLAGGED = [
     Flagged("negative-time-predose", csv_text([(1, -0.5, "0", 100)] + GOOD_ROWS), {},
             unused={2: "sampled before the dose"}),
@@ -318,6 +366,12 @@ FLAGGED = [
             unused={7: "after the last measurable concentration"}, check=_check_blq_after_tlast),
     Flagged("predose-above-5pct-cmax", csv_text(replace_row(GOOD_ROWS, 7, (2, 0, "0.5", 100))), {},
             flags={("2", "predose_high")}),  # 0.5 > 5 % of CMAX 7 (EMA 2010)
+    # --- issue 11: RFC 4180 quoted line break; U+0085/U+2028 inside cells; a UTF-8 BOM ---
+    Flagged("quoted-newline-in-note", _with_note({(1, 4): '"haemolysed,\nsee lab note"'}), {},
+            check=lambda res: _check_lines(res, 16)),
+    Flagged("u0085-and-u2028-in-cells", _with_note({}, default="a\x85b\u2028c\u2029d"), {},
+            check=lambda res: _check_lines(res, 15)),
+    Flagged("utf8-bom", b"\xef\xbb\xbf" + csv_text().encode(), {}, check=lambda res: _check_lines(res, 15)),
 ]
 
 
@@ -395,6 +449,7 @@ class RecordCase:
     match: str = ""
     stale: set = field(default_factory=set)  # subjects flagged selection_stale
     applied: set = field(default_factory=set)  # subjects whose recorded window is applied
+    kwargs: dict = field(default_factory=dict)  # further nca() options of the run
 
 
 def _changed():
@@ -410,6 +465,62 @@ def _other_study():
     return df
 
 
+def _bom(path):
+    path.write_bytes(b"\xef\xbb\xbf" + path.read_bytes())
+    return path
+
+
+def _edit_text(path, old, new):
+    text = path.read_text(encoding="utf-8")
+    assert old in text
+    path.write_text(text.replace(old, new, 1), encoding="utf-8")
+    return path
+
+
+def _rehashed(path):
+    # recompute each entry's hash as a careful hand-editor would (FIPS 180-4 via hashlib, canonical JSON)
+    import hashlib
+    import json
+
+    doc = json.loads(path.read_text(encoding="utf-8"))
+    for e in doc["entries"]:
+        body = {k: v for k, v in e.items() if k != "hash"}
+        e["hash"] = hashlib.sha256(json.dumps(body, sort_keys=True, separators=(",", ":"),
+                                              ensure_ascii=False).encode()).hexdigest()
+    path.write_text(json.dumps(doc), encoding="utf-8")
+    return path
+
+
+def _excluding(tmp_path, df, subject, times):
+    path = tmp_path / "selections.json"
+    rec = pkwidgets.SelectionRecord.load(path)
+    rec.set_exclusions(subject, times, "sample re-assayed", author="analyst", fingerprint=_fingerprint(df, subject))
+    rec.save()
+    return path
+
+
+def _blq_frame(last):
+    """Subject 1 with its 24 h sample BLQ, written ``last`` (e.g. '<0.5')."""
+    df = frame()
+    df["conc"] = df["conc"].astype(object)
+    df.loc[(df["subject"] == 1) & (df["time"] == 24), "conc"] = last
+    return df
+
+
+def _record_fit(tmp_path, **fit):
+    """A window for subject 1 fingerprinted on the '<0.5' data as the fit sees them (pkwidgets.record)."""
+    df = _blq_frame("<0.5")
+    p = df[df["subject"] == 1].sort_values("time")
+    blq = (p["conc"] == "<0.5").to_numpy()
+    conc = pd.to_numeric(p["conc"].where(~blq), errors="coerce").to_numpy(float)
+    fp = pkwidgets.profile_fingerprint(p["time"].to_numpy(float), conc, blq, **fit)
+    path = tmp_path / "selections.json"
+    rec = pkwidgets.SelectionRecord.load(path)
+    rec.set_window(1, 4, 24, "terminal phase judged from the plot", author="analyst", fingerprint=fp)
+    rec.save()
+    return path
+
+
 RECORD_CASES = [
     RecordCase("record-corrupt-json", lambda p: _write(p, VALID_HEAD + '[{"profile": ["1"], "choi'), frame(),
                "raises", r"selection record .*selections\.json is not valid JSON at line 1, column \d+"),
@@ -419,7 +530,7 @@ RECORD_CASES = [
                                                                              '"schema_version": 99') + "[]}"),
                frame(), "raises", r"selections\.json has schema_version 99"),
     RecordCase("record-entry-malformed", lambda p: _write(p, VALID_HEAD + '[{"profile": 1}]}'), frame(),
-               "raises", r"selections\.json, entry 0: "),
+               "raises", r"selections\.json, entry 0, field 'choice': is missing"),
     RecordCase("record-not-utf8", lambda p: _write_bytes(p, b"\xff\xfe{"), frame(), "raises",
                r"selections\.json is not valid JSON"),
     RecordCase("record-for-data-that-changed", lambda p: _record(p, frame(), {1: (4, 24), 2: (4, 24)}), _changed(),
@@ -429,25 +540,71 @@ RECORD_CASES = [
     RecordCase("record-of-another-study-other-subjects", lambda p: _record(p, frame(), {"A-101": (4, 24)}),
                frame(), "warns", r"selection record .*selections\.json has choices for 1 profile\(s\) not in "
                r"table \(A-101\); they were not applied\. None of its profiles is in the data"),
+    # --- issue 11: the path, the bytes and the integrity of a record (RFC 8259; FIPS 180-4 hashes) ---
+    RecordCase("record-path-mistyped", lambda p: p / "selectoins.json", frame(), "raises",
+               r"selection record .*selectoins\.json does not exist, so no recorded choice could be applied"),
+    RecordCase("record-path-is-a-folder", lambda p: p, frame(), "raises", r"selection record .* is a folder"),
+    RecordCase("record-with-utf8-bom", lambda p: _bom(_record(p, frame(), {1: (4, 24)})), frame(), "stale",
+               applied={1}),
+    RecordCase("record-duplicate-key", lambda p: _edit_text(_record(p, frame(), {1: (4, 24)}), '"author": "analyst"',
+                                                            '"author": "analyst", "author": "someone else"'),
+               frame(), "raises", r"entry 0 \(profile 1\), field 'author': this key appears twice"),
+    RecordCase("record-state-hand-edited", lambda p: _edit_text(_record(p, frame(), {1: (4, 24)}),
+                                                                '"window": [4.0, 24.0]', '"window": [2.0, 24.0]'),
+               frame(), "raises", r"entry 0 \(profile 1\), field 'hash': the entry was changed after it was written"),
+    RecordCase("record-state-edited-and-rehashed", lambda p: _rehashed(_edit_text(
+        _record(p, frame(), {1: (4, 24)}), '"window": [4.0, 24.0]', '"window": [2.0, 24.0]')), frame(), "raises",
+        r"entry 0 \(profile 1\), field 'state': the state .* does not follow from the choice"),
+    RecordCase("record-reason-edited", lambda p: _edit_text(_record(p, frame(), {1: (4, 24)}),
+                                                            '"terminal phase judged', '"terminal phase guessed'),
+               frame(), "raises", r"entry 0 \(profile 1\), field 'hash'"),
+    RecordCase("record-nan-window", lambda p: _edit_text(_record(p, frame(), {1: (4, 24)}), '"start": 4.0',
+                                                         '"start": NaN'),
+               frame(), "raises", r"entry 0 \(profile 1\), field 'choice.start': NaN is not a finite time"),
+    RecordCase("record-entry-field-misspelt", lambda p: _edit_text(_record(p, frame(), {1: (4, 24)}), '"reason"',
+                                                                   '"reasn"'),
+               frame(), "raises", r"entry 0 \(profile 1\), field 'reason': is missing"),
+    RecordCase("record-exclusion-time-not-sampled", lambda p: _excluding(p, frame(), 1, [5.5]), frame(), "warns",
+               r"profile 1 excludes 5\.5, a time with no sample\. Those recorded choices were not applied"),
+    RecordCase("record-version-1", lambda p: _write(p, VALID_HEAD + '[{"profile": ["1"], "choice": {"action": '
+                                                    '"window", "start": 4.0, "end": 24.0}, "state": {"window": [4.0, '
+                                                    '24.0], "exclude": []}, "reason": "r", "author": "a", "timestamp": '
+                                                    '"2025-01-01T00:00:00Z", "fingerprint": "' + "c" * 64 + '"}]}'),
+               frame(), "stale", stale={1}),
+    # --- issue 11: the fingerprint covers the LLOQ of BLQ samples, the BLQ rules and the area method ---
+    RecordCase("record-lloq-corrected", lambda p: _record_fit(p, lloq=0.5), _blq_frame("<0.05"), "stale", stale={1},
+               kwargs={"blq_rules": {"after": "lloq"}}),
+]
+
+# Cases that pass once table.py hands lloq, blq_rules and auc_method to apply_selections (issue 11 wiring).
+RECORD_CASES_WIRING = [
+    RecordCase("record-area-method-changed", lambda p: _record_fit(p, auc_method="linear"), _blq_frame("<0.5"),
+               "stale", stale={1}, kwargs={"auc_method": "lin-up/log-down"}),
+    RecordCase("record-same-lloq-rules-method-applied", lambda p: _record_fit(p, lloq=0.5, blq_rules={"after": "lloq"},
+                                                                              auc_method="lin-up/log-down"),
+               _blq_frame("<0.5"), "stale", applied={1},
+               kwargs={"blq_rules": {"after": "lloq"}, "auc_method": "lin-up/log-down"}),
 ]
 
 
-@pytest.mark.parametrize("case", RECORD_CASES, ids=[c.id for c in RECORD_CASES])
+@pytest.mark.parametrize("case", RECORD_CASES + RECORD_CASES_WIRING,
+                         ids=[c.id for c in RECORD_CASES + RECORD_CASES_WIRING])
 def test_selection_record_cases(case, tmp_path):
     path = case.make(tmp_path)
-    before = path.read_bytes()
-    auto = nca(case.data, by="subject")
+    before = path.read_bytes() if path.is_file() else None
+    opts = {"by": "subject", **case.kwargs}
+    auto = nca(case.data, **opts)
     if case.outcome == "raises":
         with pytest.raises(InputDataError, match=case.match) as info:
-            nca(case.data, by="subject", selections=path)
+            nca(case.data, selections=path, **opts)
         last = traceback.extract_tb(info.value.__traceback__)[-1]
         assert os.path.dirname(os.path.abspath(last.filename)) == PKG_DIR, last
     elif case.outcome == "warns":
         with pytest.warns(UserWarning, match=case.match):
-            res = nca(case.data, by="subject", selections=path)
+            res = nca(case.data, selections=path, **opts)
         pd.testing.assert_frame_equal(res.parameters, auto.parameters)  # nothing applied
     else:
-        res = nca(case.data, by="subject", selections=path)
+        res = nca(case.data, selections=path, **opts)
         flagged = set(res.flags.loc[res.flags["flag"] == "selection_stale", "subject"])
         assert flagged == case.stale
         manual = set(res.flags.loc[res.flags["flag"] == "manual_terminal", "subject"])
@@ -457,4 +614,4 @@ def test_selection_record_cases(case, tmp_path):
         for subject in case.applied:  # a matching choice is applied: the fit starts in the window
             lamzll = res.profile(subject).parameters["LAMZLL"]
             assert 4 <= lamzll
-    assert path.read_bytes() == before  # reading a record never changes it
+    assert (path.read_bytes() if path.is_file() else None) == before  # reading a record never changes it

@@ -119,7 +119,7 @@ class StudyNavigator(widgets.VBox):
     def __init__(self, data, *, by, selections=None, author=None, **nca_options):
         self._data = data
         self.by = [by] if isinstance(by, str) else list(by)
-        self.record = coerce_record(selections) if selections is not None else SelectionRecord()
+        self.record = coerce_record(selections, create=True) if selections is not None else SelectionRecord()
         self._nca_options = dict(nca_options)
         self.toggles = MethodToggles(auc_method=nca_options.get("auc_method", "linear"),
                                      blq_rules=nca_options.get("blq_rules"))

@@ -125,7 +125,6 @@ class TerminalPhasePicker(widgets.VBox):
         self._blq = None if blq is None else np.asarray(blq, dtype=bool)
         self._lloq = lloq
         self.key = key
-        self.fingerprint = profile_fingerprint(self._time, self._conc, self._blq)
         auc_method = options.pop("auc_method", self.auc_method)
         blq_rules = dict(options.pop("blq_rules", None) or self.blq_rules or {})
         self._options = options
@@ -140,6 +139,12 @@ class TerminalPhasePicker(widgets.VBox):
         finally:
             self._loading = False
         self._recompute(None)
+
+    @property
+    def fingerprint(self) -> str:
+        """Fingerprint of what the fit sees: samples, LLOQ of BLQ samples, BLQ rules, area method."""
+        return profile_fingerprint(self._time, self._conc, self._blq, lloq=self._lloq,
+                                   blq_rules=dict(self.blq_rules) or None, auc_method=self.auc_method)
 
     @property
     def options(self) -> dict:
