@@ -1,0 +1,447 @@
+r"""Test versus reference comparisons of NCA parameters: crossover, paired and parallel designs.
+
+:func:`compare_treatments` takes the per-profile parameter table of
+:func:`pkwidgets.nca` (or any table with the same columns), chooses the model
+from the design of the data, and returns a :class:`Comparison`: one row per
+parameter with the geometric mean ratio test/reference, its confidence
+interval, the within-subject CV and the conclusion against the stated
+acceptance limits, plus what a reviewer checks (model, ANOVA tables,
+incomplete subjects, values not used, per-subject ratios, the TMAX rank
+comparison).
+
+Results support qualified review; follow local regulations and SOPs.
+"""
+
+from __future__ import annotations
+
+import html
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+
+from . import _compare_fits as fits
+from .errors import InputDataError
+
+__all__ = ["Comparison", "compare_treatments", "DESIGNS", "DEFAULT_LIMITS"]
+
+#: Designs and the model each one uses (``design=`` takes a key or ``"auto"``).
+DESIGNS = {
+    "2x2": "2x2x2 crossover: ANOVA of ln values with sequence, subject(sequence), period and treatment as fixed "
+           "effects (statsmodels OLS)",
+    "mixed": "crossover with replicates or more than two periods: linear mixed model of ln values, fixed sequence, "
+             "period and treatment, random subject intercept, REML (statsmodels MixedLM)",
+    "paired": "paired, no period information: t interval of the within-subject ln differences",
+    "parallel": "parallel groups: Welch t interval of the difference of mean ln values",
+}
+#: Acceptance limits of the ratio, EMA 2010 bioequivalence guideline and FDA 2001 statistical guidance.
+DEFAULT_LIMITS = (0.80, 1.25)
+#: Times, compared by the Hodges-Lehmann median difference (reported in ``Comparison.tmax``).
+RANK_CODES = ("TMAX", "TMIN", "TLAG")
+_COLUMNS = ["parameter", "n", "ratio", "lower", "upper", "cv_intra", "gmean_test", "gmean_reference", "n_test",
+            "n_reference", "limit_low", "limit_high", "within_limits", "conclusion", "model", "df", "note"]
+
+
+@dataclass
+class Comparison:
+    """Result of :func:`compare_treatments`.
+
+    Attributes
+    ----------
+    table : DataFrame
+        One row per ln-scale parameter: ``parameter, n, ratio, lower, upper,
+        cv_intra`` (%), ``gmean_test, gmean_reference`` (observed geometric
+        means of the values in the model), ``n_test, n_reference``,
+        ``limit_low, limit_high`` (ratios), ``within_limits`` (bool),
+        ``conclusion`` (text), ``model``, ``df``, ``note``.
+    tmax : DataFrame
+        Time parameters (TMAX...): ``parameter, n, median_test,
+        median_reference, difference`` (Hodges-Lehmann, test - reference),
+        ``lower, upper, method, note``.
+    anova : dict
+        Parameter -> ANOVA table (2x2) or fixed effects and variance
+        components (mixed model).
+    incomplete : DataFrame
+        Subjects with a value for one treatment only, per parameter, with the
+        reason and whether the model used them.
+    excluded : DataFrame
+        Values not used, with the reason (missing, <= 0 on a log scale,
+        other treatment).
+    pairs : DataFrame
+        Per subject and parameter: test, reference and their ratio.
+    design, model : str
+        Key of :data:`DESIGNS` and its description.
+    level : float
+    test, reference : object
+        Treatment labels.
+    """
+
+    table: pd.DataFrame
+    tmax: pd.DataFrame
+    anova: dict
+    incomplete: pd.DataFrame
+    excluded: pd.DataFrame
+    pairs: pd.DataFrame
+    design: str
+    model: str
+    level: float
+    test: object
+    reference: object
+    how_chosen: str = ""
+    columns: dict = field(default_factory=dict)
+
+    def __repr__(self) -> str:
+        return (f"Comparison of {self.test} vs {self.reference}, {self.model} ({self.how_chosen})\n"
+                f"{self.table[_COLUMNS[:8] + ['within_limits']].to_string(index=False)}\n"
+                f"incomplete subjects: {self.incomplete['subject'].nunique()}; values not used: {len(self.excluded)}")
+
+    def _repr_html_(self) -> str:
+        head = (f"<p><b>Test {html.escape(str(self.test))} vs reference {html.escape(str(self.reference))}</b>: "
+                f"{html.escape(self.model)} ({html.escape(self.how_chosen)}); {100 * self.level:g} % confidence "
+                f"intervals.</p>")
+        tail = (f"<p>Incomplete subjects: {self.incomplete['subject'].nunique()}; values not used: "
+                f"{len(self.excluded)} (see <code>.incomplete</code>, <code>.excluded</code>). Results support "
+                "qualified review; follow local regulations and SOPs.</p>")
+        return head + self.table.to_html(index=False) + tail
+
+
+# ---------------------------------------------------------------------------- validation
+
+def _require_columns(params, names):
+    missing = [n for n in names if n is not None and n not in params.columns]
+    if missing:
+        raise InputDataError(f"column(s) {missing} are not in the parameter table; its columns are "
+                             f"{list(params.columns)}. Name the columns that hold them.", column=missing[0])
+
+
+def _check_options(level, design, limits, parameters):
+    if not 0.0 < float(level) < 1.0:
+        raise ValueError(f"The 'level' option must be a confidence level between 0 and 1 (0.90 for bioequivalence); "
+                         f"got {level!r}.")
+    if design != "auto" and design not in DESIGNS:
+        raise ValueError(f"The 'design' option must be one of {['auto', *DESIGNS]}; got {design!r}.")
+    if not parameters:
+        raise ValueError("The 'parameters' option must name at least one column, e.g. ('CMAX', 'AUCLST').")
+    for code, (lo, hi) in limits.items():
+        if not 0.0 < lo < hi:
+            raise ValueError(f"acceptance limits for {code} must be ratios 0 < low < high, e.g. (0.80, 1.25); "
+                             f"got ({lo!r}, {hi!r}).")
+
+
+def _limits_per_code(limits, parameters) -> dict:
+    """(low, high) for every parameter from a pair or a dict code -> pair (others get the default)."""
+    if isinstance(limits, dict):
+        return {c: tuple(map(float, limits.get(c, DEFAULT_LIMITS))) for c in parameters}
+    lo, hi = limits
+    return {c: (float(lo), float(hi)) for c in parameters}
+
+
+def _role(params, treatment, test, reference) -> pd.Series:
+    """'test', 'reference' or '' per row; labels compared as text (1 and '1' match)."""
+    if str(test) == str(reference):
+        raise ValueError(f"test and reference are the same label ({test!r}); name two treatments of {treatment!r}.")
+    labels = params[treatment].astype(str)
+    present = sorted(labels.dropna().unique())
+    for name, value in (("test", test), ("reference", reference)):
+        if str(value) not in present:
+            raise ValueError(f"{name}={value!r} is not a value of column {treatment!r}; its values are {present}. "
+                             f"Set {name} to one of them.")
+    return pd.Series(np.select([labels == str(test), labels == str(reference)], ["test", "reference"], ""),
+                     index=params.index)
+
+
+def _check_keys(params, subject, treatment, period):
+    for col in (subject, treatment, period):
+        if col is not None and params[col].isna().any():
+            rows = list(params.index[params[col].isna()][:5])
+            raise InputDataError(f"column {col!r} has no value in row(s) {rows}: every profile needs its {col}.",
+                                 column=col, line=rows[0])
+    keys = [subject, period] if period is not None else [subject, treatment]
+    dup = params.duplicated(keys, keep=False)
+    if dup.any():
+        first = params.loc[dup, keys].iloc[0].tolist()
+        hint = "" if period is not None else (" Give period= (the column of the study period) for a replicate "
+                                              "design.")
+        raise InputDataError(f"{len(params[dup])} rows share {dict(zip(keys, first))}: one row per "
+                             f"{' and '.join(keys)} is expected.{hint}", column=keys[-1], profile=first[0])
+
+
+# ---------------------------------------------------------------------------- sequences and design
+
+def _derive_sequences(params, subject, treatment, period) -> pd.Series:
+    """Each subject's treatments in period order ("TR"); a subject with missing periods gets the one full
+    sequence that agrees with the periods it has, else its own sequence with '?' in the gaps."""
+    periods = sorted(params[period].unique(), key=lambda p: (pd.to_numeric(p, errors="coerce"), str(p)))
+    grid = params.pivot(index=subject, columns=period, values=treatment).reindex(columns=periods).astype(object)
+    sep = "" if params[treatment].astype(str).str.len().max() == 1 else "-"
+    text = grid.apply(lambda r: sep.join("?" if pd.isna(v) else str(v) for v in r), axis=1)
+    full = sorted(set(text[grid.notna().all(axis=1)]))
+    for s in text.index[grid.isna().any(axis=1)]:
+        have = grid.loc[s].notna().to_numpy()
+        fits_ = [f for f in full if all(a == b for a, b, h in zip(f.split(sep) if sep else f,
+                                                                  text[s].split(sep) if sep else text[s], have) if h)]
+        if len(fits_) == 1:
+            text[s] = fits_[0]
+    return text
+
+
+def _subject_sequence(params, subject, sequence):
+    per = params.groupby(subject)[sequence].nunique()
+    if (per > 1).any():
+        s = per.index[per > 1][0]
+        raise InputDataError(f"subject {s!r} has more than one value of {sequence!r} "
+                             f"({sorted(params.loc[params[subject] == s, sequence].astype(str).unique())}); a subject "
+                             "belongs to one sequence.", column=sequence, profile=s)
+    return params.groupby(subject)[sequence].first().astype(str)
+
+
+def _choose_design(rows, design, has_period) -> tuple[str, str]:
+    """Design key and why: from who received which treatment, and in how many periods."""
+    counts = rows.groupby(["subject", "role"]).size().unstack(fill_value=0).reindex(
+        columns=["test", "reference"], fill_value=0)
+    both = (counts > 0).all(axis=1)
+    replicated = bool((counts > 1).any(axis=None))
+    n_periods = rows["period"].nunique() if has_period else 0
+    n_seq = rows.loc[rows["subject"].isin(both.index[both]), "sequence"].nunique() if has_period else 0
+    if not both.any():
+        auto, why = "parallel", "no subject received both treatments"
+    elif not has_period:
+        auto, why = "paired", "subjects received both treatments; no period column given"
+    elif n_periods == 2 and not replicated and n_seq <= 2:
+        auto, why = "2x2", "two periods, two sequences, one profile per subject and treatment"
+    else:
+        auto, why = "mixed", f"{n_periods} periods, {n_seq} sequences{', replicated treatments' if replicated else ''}"
+    if design == "auto":
+        return auto, f"chosen from the data: {why}"
+    problems = {"parallel": both.any() and f"{int(both.sum())} subjects received both treatments (not independent "
+                                           "groups)",
+                "2x2": (not has_period and "no period column given") or (auto != "2x2" and why),
+                "paired": replicated and "a subject has more than one profile of a treatment"}
+    if problems.get(design):
+        raise ValueError(f"design={design!r} does not fit the data: {problems[design]}. Use design='auto' or "
+                         f"{auto!r}.")
+    return design, f"requested (the data suggest {auto!r}: {why})"
+
+
+# ---------------------------------------------------------------------------- one parameter
+
+def _values(rows, code, log):
+    """The usable values of one parameter, and the rows left out with their reason."""
+    v = rows[code]
+    reason = pd.Series("", index=rows.index)
+    reason[v.isna()] = "no value"
+    if log:
+        reason[v.notna() & (v <= 0)] = "value <= 0: ln undefined on the log scale"
+    out = rows.loc[reason == ""].assign(value=v[reason == ""])
+    gone = rows.loc[reason != "", ["subject", "treatment", "period", "role"]].assign(
+        parameter=code, value=v[reason != ""], reason=reason[reason != ""])
+    return out, gone
+
+
+def _incomplete(values, gone, code, used):
+    have = values.groupby(["subject", "role"]).size().unstack(fill_value=0).reindex(
+        columns=["test", "reference"], fill_value=0)
+    part = have[(have == 0).any(axis=1)]
+    rows = []
+    for s, r in part.iterrows():
+        missing = "reference" if r["reference"] == 0 else "test"
+        why = gone.loc[(gone["subject"] == s) & (gone["role"] == missing), "reason"]
+        rows.append({"parameter": code, "subject": s, "n_test": int(r["test"]), "n_reference": int(r["reference"]),
+                     "reason": f"no {missing} value ({why.iloc[0] if len(why) else 'no profile'})",
+                     "used_in_model": used})
+    return rows
+
+
+def _fit(values, design, level):
+    """Fit of one ln-scale parameter; returns (Fit, subjects used, ANOVA or None)."""
+    counts = values.groupby(["subject", "role"]).size().unstack(fill_value=0).reindex(
+        columns=["test", "reference"], fill_value=0)
+    complete = counts.index[(counts > 0).all(axis=1)]
+    y, is_test = np.log(values["value"].to_numpy(float)), (values["role"] == "test").to_numpy()
+    if design == "parallel":
+        return fits.welch_t(y[is_test], y[~is_test], level), values["subject"].unique(), None
+    if design == "paired":
+        wide = values[values["subject"].isin(complete)].pivot(index="subject", columns="role", values="value")
+        d = np.log(wide["test"].to_numpy(float)) - np.log(wide["reference"].to_numpy(float))
+        return fits.paired_t(d, level), complete, None
+    frame = pd.DataFrame({"y": y, "subject": values["subject"].astype(str).to_numpy(),
+                          "period": values["period"].astype(str).to_numpy(),
+                          "sequence": values["sequence"].astype(str).to_numpy(),
+                          "treatment": values["role"].to_numpy()})
+    if design == "2x2":
+        frame = frame[values["subject"].isin(complete).to_numpy()]
+        if frame["sequence"].nunique() < 2 or len(complete) < 3:
+            return fits.Fit(*[np.nan] * 5, note="needs complete subjects in both sequences (at least 3)"), complete, None
+        fit = fits.crossover_ols(frame["y"], frame["subject"], frame["period"], frame["treatment"] == "test", level)
+        return fit, complete, fits.anova_2x2(frame)
+    x = fits._fixed_subject_design(frame["subject"], frame["period"], frame["treatment"] == "test")
+    df = len(frame) - np.linalg.matrix_rank(x)
+    try:
+        fit, table = fits.crossover_mixed(frame, level, df=df)
+    except (np.linalg.LinAlgError, ValueError) as exc:
+        return fits.Fit(*[np.nan] * 5, note=f"MixedLM failed: {exc}"), values["subject"].unique(), None
+    return fit, values["subject"].unique(), table
+
+
+def _row(code, fit, values, used, lim, level):
+    used_vals = values[values["subject"].isin(used)]
+    g = {r: float(np.exp(np.mean(np.log(used_vals.loc[used_vals["role"] == r, "value"].to_numpy(float)))))
+         if (used_vals["role"] == r).any() else np.nan for r in ("test", "reference")}
+    ratio, lo, hi = np.exp([fit.estimate, fit.lower, fit.upper])
+    # EMA 2010: the bounds, in %, rounded to two decimals, must lie within 80.00-125.00 (from memory)
+    within = bool(np.isfinite([lo, hi]).all() and round(100 * lo, 2) >= round(100 * lim[0], 2)
+                  and round(100 * hi, 2) <= round(100 * lim[1], 2))
+    text = (f"{100 * level:g} % CI {100 * lo:.2f}-{100 * hi:.2f} % {'within' if within else 'not within'} "
+            f"{100 * lim[0]:.2f}-{100 * lim[1]:.2f} %") if np.isfinite([lo, hi]).all() else "not estimable"
+    return {"parameter": code, "n": len(used), "ratio": ratio, "lower": lo, "upper": hi,
+            "cv_intra": 100.0 * np.sqrt(np.expm1(fit.mse)) if np.isfinite(fit.mse) else np.nan,
+            "gmean_test": g["test"], "gmean_reference": g["reference"],
+            "n_test": int((used_vals["role"] == "test").sum()), "n_reference": int((used_vals["role"] == "reference").sum()),
+            "limit_low": lim[0], "limit_high": lim[1], "within_limits": within, "conclusion": text,
+            "df": fit.df, "note": fit.note}
+
+
+def _rank_row(code, values, design, level):
+    per = values.groupby(["subject", "role"])["value"].mean().unstack().reindex(columns=["test", "reference"])
+    if design == "parallel":
+        x, y = per["test"].dropna().to_numpy(), per["reference"].dropna().to_numpy()
+        fit, n, method = fits.hodges_lehmann_shift(x, y, level), x.size + y.size, "Hodges-Lehmann shift, Mann-Whitney interval"
+    else:
+        both = per.dropna()
+        x, y = both["test"].to_numpy(), both["reference"].to_numpy()
+        fit, n, method = fits.hodges_lehmann_paired(x - y, level), len(both), "Hodges-Lehmann median difference, Wilcoxon signed-rank interval"
+    return {"parameter": code, "n": n, "median_test": float(np.median(x)) if x.size else np.nan,
+            "median_reference": float(np.median(y)) if y.size else np.nan, "difference": fit.estimate,
+            "lower": fit.lower, "upper": fit.upper, "method": method, "note": fit.note}
+
+
+def _pairs(values, code):
+    g = values.assign(ln=np.log(values["value"].astype(float))).groupby(["subject", "sequence", "role"])["ln"].mean()
+    wide = np.exp(g.unstack("role")).reindex(columns=["test", "reference"]).dropna().reset_index()
+    wide.columns.name = None
+    return wide.assign(parameter=code, ratio=wide["test"] / wide["reference"])
+
+
+# ---------------------------------------------------------------------------- entry point
+
+def compare_treatments(params, *, subject, treatment, test, reference, period=None, sequence=None,
+                       parameters=("CMAX", "AUCLST", "AUCIFO"), level=0.90, design="auto",
+                       limits=DEFAULT_LIMITS) -> Comparison:
+    r"""Geometric mean ratio test/reference with its confidence interval, per parameter.
+
+    Parameters
+    ----------
+    params : DataFrame
+        One row per profile (``pk.nca(...).parameters``): subject, treatment,
+        optionally period and sequence columns, and the parameter columns.
+    subject, treatment : str
+        Column names.
+    test, reference : object
+        Treatment labels (compared as text).  Rows of other treatments are
+        left out and listed in ``excluded`` (each comparison uses only its two
+        treatments).
+    period : str, optional
+        Period column; without it subjects with both treatments are paired.
+    sequence : str, optional
+        Sequence column; None derives each subject's sequence from its
+        treatments in period order.
+    parameters : sequence of str
+        Columns to compare; TMAX, TMIN and TLAG go to the rank comparison.
+    level : float
+        Confidence level, default 0.90 (two one-sided tests at 5 %).
+    design : {"auto", "2x2", "mixed", "paired", "parallel"}
+        "auto" chooses from the data (see :data:`DESIGNS`).
+    limits : (float, float) or dict
+        Acceptance limits of the ratio, default (0.80, 1.25) (EMA 2010, FDA
+        2001); a dict maps parameter -> limits (others keep the default).
+
+    Returns
+    -------
+    Comparison
+        ``.table`` (one row per parameter), ``.tmax``, ``.anova``,
+        ``.incomplete``, ``.excluded``, ``.pairs``, ``.design``, ``.model``.
+
+    Notes
+    -----
+    On :math:`y = \ln P`, with :math:`\hat\delta` the test - reference
+    difference of the chosen model and :math:`\mathrm{SE}` its standard error:
+
+    .. math:: \mathrm{ratio} = e^{\hat\delta}, \quad [e^{\hat\delta - t\,\mathrm{SE}},\
+       e^{\hat\delta + t\,\mathrm{SE}}], \quad t = t_{(1+L)/2,\,df}, \quad
+       \mathrm{CV_{intra}} = 100\sqrt{e^{\mathrm{MSE}} - 1}
+
+    (Chow & Liu, Design and Analysis of Bioavailability and Bioequivalence
+    Studies, 3rd ed., 2009).  The interval lies within the limits when its
+    bounds in percent, rounded to two decimals, do (EMA 2010, from memory).
+    In a 2x2 crossover a subject with one period carries no within-subject
+    information and is listed, not used; the mixed model uses it.
+
+    Examples
+    --------
+    >>> df = pd.DataFrame({"id": [1, 1, 2, 2, 3, 3, 4, 4], "per": [1, 2] * 4,
+    ...                    "trt": ["T", "R", "R", "T", "T", "R", "R", "T"],
+    ...                    "CMAX": [10.0, 11.0, 12.0, 10.5, 9.0, 9.5, 8.0, 7.9]})
+    >>> res = compare_treatments(df, subject="id", treatment="trt", period="per", test="T", reference="R",
+    ...                          parameters=["CMAX"])
+    >>> res.design, round(float(res.table["ratio"].iloc[0]), 4)
+    ('2x2', 0.9381)
+    >>> compare_treatments(df, subject="id", treatment="trt", test="A", reference="R", parameters=["CMAX"])
+    Traceback (most recent call last):
+    ...
+    ValueError: test='A' is not a value of column 'trt'; its values are ['R', 'T']. Set test to one of them.
+    """
+    if not isinstance(params, pd.DataFrame):
+        raise TypeError(f"params must be a pandas DataFrame (e.g. pk.nca(...).parameters); got {type(params).__name__}.")
+    parameters = [parameters] if isinstance(parameters, str) else list(parameters)
+    lims = _limits_per_code(limits, parameters)
+    _check_options(level, design, lims, parameters)
+    _require_columns(params, [subject, treatment, period, sequence, *parameters])
+    _check_keys(params, subject, treatment, period)
+    role = _role(params, treatment, test, reference)
+    seq = (_subject_sequence(params, subject, sequence) if sequence is not None else
+           _derive_sequences(params, subject, treatment, period) if period is not None else None)
+    rows = pd.DataFrame({"subject": params[subject], "treatment": params[treatment], "role": role,
+                         "period": params[period] if period is not None else np.nan,
+                         "sequence": params[subject].map(seq) if seq is not None else ""})
+    for code in parameters:
+        num = pd.to_numeric(params[code], errors="coerce")
+        bad = num.isna() & params[code].notna()
+        if bad.any():
+            raise InputDataError(f"column {code!r} holds non-numeric value {params.loc[bad, code].iloc[0]!r} in row "
+                                 f"{params.index[bad][0]}; parameters must be numbers (NaN for none).",
+                                 column=code, line=params.index[bad][0])
+        rows[code] = num.astype(float)
+    other = rows[rows["role"] == ""]
+    rows = rows[rows["role"] != ""]
+    chosen, how = _choose_design(rows, design, period is not None)
+    table, ranks, anova, incomplete, excluded, pairs = [], [], {}, [], [], []
+    excluded.append(other[["subject", "treatment", "period", "role"]].assign(
+        parameter="(all)", value=np.nan, reason=f"treatment is neither {test!r} nor {reference!r}"))
+    for code in parameters:
+        values, gone = _values(rows, code, log=code not in RANK_CODES)
+        excluded.append(gone)
+        if code in RANK_CODES:
+            ranks.append(_rank_row(code, values, chosen, level))
+            continue
+        fit, used, tab = _fit(values, chosen, level)
+        if chosen != "parallel":
+            incomplete += _incomplete(values, gone, code, used=chosen == "mixed")
+        if tab is not None:
+            anova[code] = tab
+        table.append(_row(code, fit, values, used, lims[code], level))
+        pairs.append(_pairs(values, code))
+    out = pd.DataFrame(table, columns=[c for c in _COLUMNS if c != "model"])
+    out.insert(_COLUMNS.index("model"), "model", DESIGNS[chosen].split(":")[0])
+    excl = pd.concat(excluded, ignore_index=True)[["parameter", "subject", "treatment", "period", "value", "reason"]]
+    inc = pd.DataFrame(incomplete, columns=["parameter", "subject", "n_test", "n_reference", "reason", "used_in_model"])
+    if seq is not None:
+        inc.insert(2, "sequence", inc["subject"].map(seq))
+    prs = (pd.concat(pairs, ignore_index=True) if pairs else pd.DataFrame(columns=["subject", "sequence", "test",
+                                                                                  "reference", "parameter", "ratio"]))
+    return Comparison(
+        table=out, tmax=pd.DataFrame(ranks, columns=["parameter", "n", "median_test", "median_reference", "difference",
+                                                     "lower", "upper", "method", "note"]),
+        anova=anova, incomplete=inc, excluded=excl, pairs=prs[["parameter", "subject", "sequence", "test", "reference",
+                                                                "ratio"]],
+        design=chosen, model=DESIGNS[chosen], level=float(level), test=test, reference=reference, how_chosen=how,
+        columns={"subject": subject, "treatment": treatment, "period": period, "sequence": sequence})
