@@ -166,6 +166,8 @@ def main(folder=HERE):
         path = os.path.join(folder, name)
         make(rng).to_csv(path, index=False, lineterminator="\n")
         out[name] = path
+    from demo_sad import main as write_sad  # PKW117-SAD04, single ascending dose (own seed)
+    out["demo_sad.csv"] = write_sad(folder)
     return out
 
 
