@@ -71,13 +71,13 @@ def _t_interval(estimate, se, df, level):
 
 def _fixed_subject_design(subject, period, is_test):
     """Columns: one indicator per subject, periods after the first, the test indicator."""
-    subject = np.asarray(subject)
-    cols = [(subject == s).astype(float) for s in np.unique(subject)]
+    _, s = np.unique(np.asarray(subject), return_inverse=True)
+    cols = [np.eye(s.max() + 1)[s]]
     if period is not None:
-        period = np.asarray(period)
-        cols += [(period == p).astype(float) for p in np.unique(period)[1:]]
-    cols.append(np.asarray(is_test, dtype=float))
-    return np.column_stack(cols)
+        _, p = np.unique(np.asarray(period), return_inverse=True)
+        cols.append(np.eye(p.max() + 1)[p][:, 1:])
+    cols.append(np.asarray(is_test, dtype=float)[:, None])
+    return np.hstack(cols)
 
 
 def crossover_ols(y, subject, period, is_test, level) -> Fit:
