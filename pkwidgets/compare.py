@@ -125,6 +125,10 @@ def _incomplete(values, gone, code, used):
     return rows
 
 
+def _not_estimable(why):
+    return fits.Fit(*[np.nan] * 5, note=why)
+
+
 def _fit(values, design, level):
     """Fit of one ln-scale parameter; returns (Fit, subjects used, ANOVA or None)."""
     counts = values.groupby(["subject", "role"]).size().unstack(fill_value=0).reindex(
@@ -132,7 +136,11 @@ def _fit(values, design, level):
     complete = counts.index[(counts > 0).all(axis=1)]
     y, is_test = np.log(values["value"].to_numpy(float)), (values["role"] == "test").to_numpy()
     if design == "parallel":
+        if min(is_test.sum(), (~is_test).sum()) < 2:
+            return _not_estimable("needs at least 2 values per treatment"), values["subject"].unique(), None
         return fits.welch_t(y[is_test], y[~is_test], level), values["subject"].unique(), None
+    if len(complete) < 2:
+        return _not_estimable("needs at least 2 subjects with values for both treatments"), complete, None
     if design == "paired":
         wide = values[values["subject"].isin(complete)].pivot(index="subject", columns="role", values="value")
         d = np.log(wide["test"].to_numpy(float)) - np.log(wide["reference"].to_numpy(float))
@@ -144,15 +152,17 @@ def _fit(values, design, level):
     if design == "2x2":
         frame = frame[values["subject"].isin(complete).to_numpy()]
         if frame["sequence"].nunique() < 2 or len(complete) < 3:
-            return fits.Fit(*[np.nan] * 5, note="needs complete subjects in both sequences (at least 3)"), complete, None
+            return _not_estimable("needs complete subjects in both sequences (at least 3)"), complete, None
         fit = fits.crossover_ols(frame["y"], frame["subject"], frame["period"], frame["treatment"] == "test", level)
         return fit, complete, fits.anova_2x2(frame)
     x = fits._fixed_subject_design(frame["subject"], frame["period"], frame["treatment"] == "test")
     df = len(frame) - np.linalg.matrix_rank(x)
+    if df < 1:
+        return _not_estimable("no residual degrees of freedom left for the mixed model"), complete, None
     try:
         fit, table = fits.crossover_mixed(frame, level, df=df)
     except (np.linalg.LinAlgError, ValueError) as exc:
-        return fits.Fit(*[np.nan] * 5, note=f"MixedLM failed: {exc}"), values["subject"].unique(), None
+        return _not_estimable(f"MixedLM failed: {exc}"), values["subject"].unique(), None
     return fit, values["subject"].unique(), table
 
 
