@@ -280,6 +280,20 @@ def compare_treatments(params, *, subject, treatment, test, reference, period=No
     check_options(level, design, lims, parameters)
     require_columns(params, [subject, treatment, period, sequence, *parameters])
     check_keys(params, subject, treatment, period)
+    rows, seq = _study_rows(params, subject, treatment, period, sequence, test, reference, parameters)
+    other, rows = rows[rows["role"] == ""], rows[rows["role"] != ""]
+    chosen, how = choose_design(rows, design, period is not None)
+    parts = _compare_all(rows, parameters, chosen, level, lims)
+    parts["excluded"].insert(0, other[["subject", "treatment", "period", "role"]].assign(
+        parameter="(all)", value=np.nan, reason=f"treatment is neither {test!r} nor {reference!r}"))
+    return Comparison(
+        **_frames(parts, chosen, seq), design=chosen, model=DESIGNS[chosen], level=float(level), test=test,
+        reference=reference, how_chosen=how,
+        columns={"subject": subject, "treatment": treatment, "period": period, "sequence": sequence})
+
+
+def _study_rows(params, subject, treatment, period, sequence, test, reference, parameters):
+    """One row per profile: subject, treatment, role, period, sequence and the parameters as floats."""
     role = roles(params, treatment, test, reference)
     seq = (subject_sequence(params, subject, sequence) if sequence is not None else
            derive_sequences(params, subject, treatment, period) if period is not None else None)
@@ -294,37 +308,40 @@ def compare_treatments(params, *, subject, treatment, test, reference, period=No
                                  f"{params.index[bad][0]}; parameters must be numbers (NaN for none).",
                                  column=code, line=params.index[bad][0])
         rows[code] = num.astype(float)
-    other = rows[rows["role"] == ""]
-    rows = rows[rows["role"] != ""]
-    chosen, how = choose_design(rows, design, period is not None)
-    table, ranks, anova, incomplete, excluded, pairs = [], [], {}, [], [], []
-    excluded.append(other[["subject", "treatment", "period", "role"]].assign(
-        parameter="(all)", value=np.nan, reason=f"treatment is neither {test!r} nor {reference!r}"))
+    return rows, seq
+
+
+def _compare_all(rows, parameters, chosen, level, lims) -> dict:
+    """Fit every parameter: lists of table rows, rank rows, incomplete subjects, excluded values, pairs."""
+    parts = {"table": [], "ranks": [], "anova": {}, "incomplete": [], "excluded": [], "pairs": []}
     for code in parameters:
         values, gone = _values(rows, code, log=code not in RANK_CODES)
-        excluded.append(gone)
+        parts["excluded"].append(gone)
         if code in RANK_CODES:
-            ranks.append(_rank_row(code, values, chosen, level))
+            parts["ranks"].append(_rank_row(code, values, chosen, level))
             continue
         fit, used, tab = _fit(values, chosen, level)
         if chosen != "parallel":
-            incomplete += _incomplete(values, gone, code, used=chosen == "mixed")
+            parts["incomplete"] += _incomplete(values, gone, code, used=chosen == "mixed")
         if tab is not None:
-            anova[code] = tab
-        table.append(_row(code, fit, values, used, lims[code], level))
-        pairs.append(_pairs(values, code))
-    out = pd.DataFrame(table, columns=[c for c in _COLUMNS if c != "model"])
+            parts["anova"][code] = tab
+        parts["table"].append(_row(code, fit, values, used, lims[code], level))
+        parts["pairs"].append(_pairs(values, code))
+    return parts
+
+
+def _frames(parts, chosen, seq) -> dict:
+    """The result tables, columns in their documented order."""
+    out = pd.DataFrame(parts["table"], columns=[c for c in _COLUMNS if c != "model"])
     out.insert(_COLUMNS.index("model"), "model", DESIGNS[chosen].split(":")[0])
-    excl = pd.concat(excluded, ignore_index=True)[["parameter", "subject", "treatment", "period", "value", "reason"]]
-    inc = pd.DataFrame(incomplete, columns=["parameter", "subject", "n_test", "n_reference", "reason", "used_in_model"])
+    excl = pd.concat(parts["excluded"], ignore_index=True)[["parameter", "subject", "treatment", "period", "value",
+                                                            "reason"]]
+    inc = pd.DataFrame(parts["incomplete"], columns=["parameter", "subject", "n_test", "n_reference", "reason",
+                                                     "used_in_model"])
     if seq is not None:
         inc.insert(2, "sequence", inc["subject"].map(seq))
-    prs = (pd.concat(pairs, ignore_index=True) if pairs else pd.DataFrame(columns=["subject", "sequence", "test",
-                                                                                  "reference", "parameter", "ratio"]))
-    return Comparison(
-        table=out, tmax=pd.DataFrame(ranks, columns=["parameter", "n", "median_test", "median_reference", "difference",
-                                                     "lower", "upper", "method", "note"]),
-        anova=anova, incomplete=inc, excluded=excl, pairs=prs[["parameter", "subject", "sequence", "test", "reference",
-                                                                "ratio"]],
-        design=chosen, model=DESIGNS[chosen], level=float(level), test=test, reference=reference, how_chosen=how,
-        columns={"subject": subject, "treatment": treatment, "period": period, "sequence": sequence})
+    pair_cols = ["parameter", "subject", "sequence", "test", "reference", "ratio"]
+    prs = pd.concat(parts["pairs"], ignore_index=True)[pair_cols] if parts["pairs"] else pd.DataFrame(columns=pair_cols)
+    tmax = pd.DataFrame(parts["ranks"], columns=["parameter", "n", "median_test", "median_reference", "difference",
+                                                 "lower", "upper", "method", "note"])
+    return {"table": out, "tmax": tmax, "anova": parts["anova"], "incomplete": inc, "excluded": excl, "pairs": prs}

@@ -152,6 +152,21 @@ def test_non_positive_and_missing_values_are_listed():
     assert res.table.set_index("parameter").loc["CMAX", "n"] == 11
 
 
+def test_parameter_without_enough_pairs_is_not_estimable_and_listed():
+    df = crossover_2x2(np.random.default_rng(12), 5, 5)
+    df["AUCIFO"] = np.nan  # e.g. no terminal phase found
+    df.loc[(df["ID"] == "s02") & (df["TRT"] == "T"), "AUCIFO"] = 123.0
+    res = compare(df, period=None, sequence=None, parameters=["CMAX", "AUCIFO"])
+    row = res.table.set_index("parameter").loc["AUCIFO"]
+    assert row["n"] == 0 and np.isnan(row["ratio"]) and not row["within_limits"]
+    assert row["conclusion"] == "not estimable" and "at least 2 subjects" in row["note"]
+    assert (res.excluded["parameter"] == "AUCIFO").sum() == 19
+    assert res.incomplete[["parameter", "subject"]].values.tolist() == [["AUCIFO", "s02"]]
+    w = df.pivot(index="ID", columns="TRT", values="CMAX")  # CMAX unaffected: scipy paired t
+    ci = stats.ttest_rel(np.log(w["T"]), np.log(w["R"])).confidence_interval(confidence_level=LEVEL)
+    assert np.log(res.table.set_index("parameter").loc["CMAX", "lower"]) == pytest.approx(ci.low, rel=1e-10)
+
+
 def test_other_treatments_left_out_and_listed():
     df = crossover_2x2(np.random.default_rng(10), 6, 6)
     extra = df[df["TRT"] == "R"].assign(TRT="X", PER=3)
@@ -286,6 +301,12 @@ def test_monte_carlo_coverage_of_the_90_percent_interval():
     sims = 2000
     between = rng.normal(0, 0.35, (sims, n))[:, subject]
     y = 4.0 + between + true * is_test + 0.04 * (period == 2) + rng.normal(0, 0.2, (sims, 2 * n))
+    # the kernel is the one behind compare_treatments' 2x2 interval: on study 0 it equals the closed form
+    study0 = pd.DataFrame({"ID": subject, "PER": period, "SEQ": np.where(subject < n_tr, "TR", "RT"),
+                           "CMAX": np.exp(y[0])})
+    _, lo0, hi0, _, _ = closed_form_2x2(study0, "CMAX")  # Jones & Kenward
+    fit0 = _compare_fits.crossover_ols(y[0], subject, period, is_test, LEVEL)
+    assert [fit0.lower, fit0.upper] == pytest.approx([lo0, hi0], rel=1e-10)
     covered = 0
     for k in range(sims):
         fit = _compare_fits.crossover_ols(y[k], subject, period, is_test, LEVEL)
