@@ -26,6 +26,20 @@ def _limit_lines(ax, lo, hi, vertical):
     line(100.0 * hi, color=_VERMILION, ls="--", lw=1.0)
 
 
+def _plain_log(axis):
+    """Log-axis labels as plain numbers (10, 20, 50 ...) instead of powers of ten."""
+    from matplotlib.ticker import FuncFormatter
+
+    lo, hi = sorted(axis.get_view_interval())
+    few = np.log10(hi / lo) < 1.5 if lo > 0 else False
+
+    def minor(v, _):
+        return f"{v:g}" if few and v > 0 and round(v / 10 ** np.floor(np.log10(v))) in (2, 5) else ""
+
+    axis.set_major_formatter(FuncFormatter(lambda v, _: f"{v:g}"))
+    axis.set_minor_formatter(FuncFormatter(minor))
+
+
 def plot_ratios(comparison):
     """Forest plot: geometric mean ratio (%) and its interval per parameter, with the acceptance limits.
 
@@ -53,7 +67,9 @@ def plot_ratios(comparison):
     lo, hi = float(tab["limit_low"].min()), float(tab["limit_high"].max())
     _limit_lines(ax, lo, hi, vertical=True)
     ax.set_xscale("log")
-    ticks = [50, 64, 80, 100, 125, 156, 200]
+    span = 100 * np.r_[tab["lower"].dropna(), tab["upper"].dropna(), lo, hi]
+    ticks = [t for t in (10, 16, 25, 32, 40, 50, 64, 80, 100, 125, 156, 200, 250, 320, 400, 640, 1000)
+             if span.min() / 1.3 <= t <= span.max() * 1.3]
     ax.set_xticks(ticks, [str(t) for t in ticks])
     ax.minorticks_off()
     ax.set_yticks(y, tab["parameter"])
@@ -155,6 +171,9 @@ def plot_dose_proportionality(result, parameter, *, dose_unit="", unit=""):
     a2.set(xscale="log", yscale="log", xlabel=f"Dose ({dose_unit})" if dose_unit else "Dose",
            ylabel=f"{parameter} / dose ({norm_unit})" if norm_unit else f"{parameter} / dose",
            title=f"{parameter}: dose-normalised")
+    for ax in (a1, a2):
+        _plain_log(ax.xaxis)
+        _plain_log(ax.yaxis)
     h1, l1 = a1.get_legend_handles_labels()
     h2, l2 = a2.get_legend_handles_labels()
     a2.legend(h1[1:] + h2[1:], l1[1:] + l2[1:], **_OUTSIDE)
