@@ -89,21 +89,24 @@ def check_keys(params, subject, treatment, period):
 
 # ---------------------------------------------------------------------------- sequences and design
 
+def _period_order(value):
+    num = pd.to_numeric(pd.Series([value]), errors="coerce").iloc[0]
+    return (0, float(num), "") if pd.notna(num) else (1, 0.0, str(value))
+
+
 def derive_sequences(params, subject, treatment, period) -> pd.Series:
-    """Each subject's treatments in period order ("TR"); a subject with missing periods gets the one full
-    sequence that agrees with the periods it has, else its own sequence with '?' in the gaps."""
-    periods = sorted(params[period].unique(), key=lambda p: (pd.to_numeric(p, errors="coerce"), str(p)))
+    """Each subject's treatments in period order ("TR", or "A-B" for longer labels); a subject with missing
+    periods gets the one full sequence that agrees with the periods it has, else its own with '?' in the gaps."""
+    periods = sorted(params[period].unique(), key=_period_order)
     grid = params.pivot(index=subject, columns=period, values=treatment).reindex(columns=periods).astype(object)
+    rows = {s: tuple(None if pd.isna(v) else str(v) for v in r) for s, r in zip(grid.index, grid.to_numpy())}
+    full = sorted({r for r in rows.values() if None not in r})
     sep = "" if params[treatment].astype(str).str.len().max() == 1 else "-"
-    text = grid.apply(lambda r: sep.join("?" if pd.isna(v) else str(v) for v in r), axis=1)
-    full = sorted(set(text[grid.notna().all(axis=1)]))
-    for s in text.index[grid.isna().any(axis=1)]:
-        have = grid.loc[s].notna().to_numpy()
-        fits_ = [f for f in full if all(a == b for a, b, h in zip(f.split(sep) if sep else f,
-                                                                  text[s].split(sep) if sep else text[s], have) if h)]
-        if len(fits_) == 1:
-            text[s] = fits_[0]
-    return text
+    out = {}
+    for s, r in rows.items():
+        match = [f for f in full if all(a == b for a, b in zip(f, r) if b is not None)] if None in r else [r]
+        out[s] = sep.join(match[0]) if len(match) == 1 else sep.join("?" if v is None else v for v in r)
+    return pd.Series(out)
 
 
 def subject_sequence(params, subject, sequence):

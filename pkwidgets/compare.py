@@ -317,8 +317,10 @@ def _compare_all(rows, parameters, chosen, level, lims) -> dict:
     for code in parameters:
         values, gone = _values(rows, code, log=code not in RANK_CODES)
         parts["excluded"].append(gone)
-        if code in RANK_CODES:
+        if code in RANK_CODES:  # paired differences: a subject with one treatment is listed, not used
             parts["ranks"].append(_rank_row(code, values, chosen, level))
+            if chosen != "parallel":
+                parts["incomplete"] += _incomplete(values, gone, code, used=False)
             continue
         fit, used, tab = _fit(values, chosen, level)
         if chosen != "parallel":

@@ -124,9 +124,12 @@ def test_2x2_anova_table_against_ols_and_subject_means():
 def test_2x2_dropout_listed_not_used_and_equal_to_complete_subjects():
     df = crossover_2x2(np.random.default_rng(7), 7, 7)
     df = df[~((df["ID"] == "s03") & (df["PER"] == 2))]  # s03 left after period 1 (sequence TR: only T)
-    res = compare(df)
+    res = compare(df, parameters=["CMAX", "AUCLST", "TMAX"])
     inc = res.incomplete[res.incomplete["parameter"] == "CMAX"]
     assert inc["subject"].tolist() == ["s03"] and not inc["used_in_model"].iloc[0]
+    assert res.incomplete["parameter"].tolist() == ["CMAX", "AUCLST", "TMAX"]  # TMAX: listed too
+    assert res.tmax.iloc[0]["n"] == 13
+    assert "2x2x2 crossover" in res._repr_html_() and "Incomplete subjects: 1" in res._repr_html_()
     assert inc["sequence"].iloc[0] == "TR" and "no reference value" in inc["reason"].iloc[0]
     row = res.table.set_index("parameter").loc["CMAX"]
     est, lo, hi, _, _ = closed_form_2x2(df, "CMAX")  # complete subjects only (Jones & Kenward)
@@ -138,6 +141,12 @@ def test_derived_sequence_equals_given_sequence():
     given, derived = compare(df), compare(df, sequence=None)
     pd.testing.assert_frame_equal(given.table, derived.table)
     assert given.anova["CMAX"].equals(derived.anova["CMAX"])
+    # a subject seen in period 2 only takes the one sequence that fits; labels longer than a letter keep a separator
+    drop = df[~((df["ID"] == "s07") & (df["PER"] == 1))].assign(TRT=lambda d: d["TRT"].map({"T": "MR-40", "R": "IR-40"}),
+                                                               PER=lambda d: d["PER"].map({1: "P1", 2: "P2"}))
+    res = compare(drop, sequence=None, test="MR-40", reference="IR-40")
+    assert res.incomplete["sequence"].unique().tolist() == ["IR-40-MR-40"]  # s07 is in sequence RT
+    assert set(res.pairs["sequence"]) == {"MR-40-IR-40", "IR-40-MR-40"}
 
 
 def test_non_positive_and_missing_values_are_listed():
