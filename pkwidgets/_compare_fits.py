@@ -183,6 +183,9 @@ def crossover_mixed(frame, level, *, df) -> tuple[Fit, pd.DataFrame]:
     name = "C(treatment, Treatment('reference'))[T.test]"
     est, se = float(res.fe_params[name]), float(res.bse_fe[name])
     lo, hi = _t_interval(est, se, df, level)
+    for w in caught:  # pass on what is not about convergence; convergence goes into the note
+        if not issubclass(w.category, ConvergenceWarning):
+            warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
     notes = sorted({str(w.message).split("\n")[0] for w in caught if issubclass(w.category, ConvergenceWarning)})
     if not res.converged:
         notes.append("MixedLM did not report convergence")

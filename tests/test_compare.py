@@ -382,3 +382,27 @@ def test_bad_tables_are_named():
     no_period = df.copy()
     with pytest.raises(InputDataError, match="Give period="):
         compare(pd.concat([no_period, no_period.iloc[[0]].assign(PER=3)]), period=None, sequence=None)
+
+
+# ---------------------------------------------------------------------------- figures
+
+def test_figures_keep_legends_outside_the_data_and_state_units():
+    """Legends sit right of every data area (design notes of the issue; common practice, no source)."""
+    import matplotlib
+
+    matplotlib.use("Agg")
+    from pkwidgets import comparison_plots
+
+    df = crossover_2x2(np.random.default_rng(91), 6, 6)
+    res = compare(df)
+    for fig in (comparison_plots.plot_ratios(res), comparison_plots.plot_subject_ratios(res)):
+        fig.canvas.draw()
+        legends = [a.get_legend() for a in fig.axes if a.get_legend() is not None]
+        assert len(legends) == 1
+        right = max(a.get_window_extent().x1 for a in fig.axes if a.get_visible())
+        assert legends[0].get_window_extent().x0 >= right
+    assert "(%)" in comparison_plots.plot_ratios(res).axes[0].get_xlabel()
+    dp = pk.dose_proportionality(df.assign(DOSE=np.where(df["PER"] == 1, 10.0, 30.0)), dose="DOSE", parameters="CMAX")
+    fig = comparison_plots.plot_dose_proportionality(dp, "CMAX", dose_unit="mg", unit="ng/mL")
+    assert fig.axes[0].get_ylabel() == "CMAX (ng/mL)" and fig.axes[1].get_ylabel() == "CMAX / dose (ng/mL/mg)"
+    matplotlib.pyplot.close("all")
