@@ -13,8 +13,8 @@ import pandas as pd
 
 from .errors import InputDataError
 
-__all__ = ["DESIGNS", "DEFAULT_LIMITS", "require_columns", "check_options", "limits_per_code", "roles", "check_keys",
-           "derive_sequences", "subject_sequence", "choose_design"]
+__all__ = ["DESIGNS", "DEFAULT_LIMITS", "require_columns", "check_options", "limits_per_code", "treatment_roles",
+           "check_keys", "derive_sequences", "subject_sequence", "choose_design"]
 
 #: Designs and the model each one uses (``design=`` takes a key or ``"auto"``).
 DESIGNS = {
@@ -57,7 +57,7 @@ def limits_per_code(limits, parameters) -> dict:
     return {c: (float(lo), float(hi)) for c in parameters}
 
 
-def roles(params, treatment, test, reference) -> pd.Series:
+def treatment_roles(params, treatment, test, reference) -> pd.Series:
     """'test', 'reference' or '' per row; labels compared as text (1 and '1' match)."""
     if str(test) == str(reference):
         raise ValueError(f"test and reference are the same label ({test!r}); name two treatments of {treatment!r}.")

@@ -22,7 +22,7 @@ import pandas as pd
 
 from . import _compare_fits as fits
 from ._compare_design import (DEFAULT_LIMITS, DESIGNS, check_keys, check_options, choose_design,
-                              derive_sequences, limits_per_code, require_columns, roles, subject_sequence)
+                              derive_sequences, limits_per_code, require_columns, subject_sequence, treatment_roles)
 from .errors import InputDataError
 
 __all__ = ["Comparison", "compare_treatments", "DESIGNS", "DEFAULT_LIMITS"]
@@ -65,6 +65,11 @@ class Comparison:
     level : float
     test, reference : object
         Treatment labels.
+    how_chosen : str
+        Why this design: chosen from the data, or requested (and what the
+        data suggest).
+    roles : dict
+        Column names given for subject, treatment, period and sequence.
     """
 
     table: pd.DataFrame
@@ -79,7 +84,7 @@ class Comparison:
     test: object
     reference: object
     how_chosen: str = ""
-    columns: dict = field(default_factory=dict)
+    roles: dict = field(default_factory=dict)
 
     def __repr__(self) -> str:
         return (f"Comparison of {self.test} vs {self.reference}, {self.model} ({self.how_chosen})\n"
@@ -179,7 +184,8 @@ def _row(code, fit, values, used, lim, level):
     return {"parameter": code, "n": len(used), "ratio": ratio, "lower": lo, "upper": hi,
             "cv_intra": 100.0 * np.sqrt(np.expm1(fit.mse)) if np.isfinite(fit.mse) else np.nan,
             "gmean_test": g["test"], "gmean_reference": g["reference"],
-            "n_test": int((used_vals["role"] == "test").sum()), "n_reference": int((used_vals["role"] == "reference").sum()),
+            "n_test": int((used_vals["role"] == "test").sum()),
+            "n_reference": int((used_vals["role"] == "reference").sum()),
             "limit_low": lim[0], "limit_high": lim[1], "within_limits": within, "conclusion": text,
             "df": fit.df, "note": fit.note}
 
@@ -188,11 +194,13 @@ def _rank_row(code, values, design, level):
     per = values.groupby(["subject", "role"])["value"].mean().unstack().reindex(columns=["test", "reference"])
     if design == "parallel":
         x, y = per["test"].dropna().to_numpy(), per["reference"].dropna().to_numpy()
-        fit, n, method = fits.hodges_lehmann_shift(x, y, level), x.size + y.size, "Hodges-Lehmann shift, Mann-Whitney interval"
+        fit, n = fits.hodges_lehmann_shift(x, y, level), x.size + y.size
+        method = "Hodges-Lehmann shift, Mann-Whitney interval"
     else:
         both = per.dropna()
         x, y = both["test"].to_numpy(), both["reference"].to_numpy()
-        fit, n, method = fits.hodges_lehmann_paired(x - y, level), len(both), "Hodges-Lehmann median difference, Wilcoxon signed-rank interval"
+        fit, n = fits.hodges_lehmann_paired(x - y, level), len(both)
+        method = "Hodges-Lehmann median difference, Wilcoxon signed-rank interval"
     return {"parameter": code, "n": n, "median_test": float(np.median(x)) if x.size else np.nan,
             "median_reference": float(np.median(y)) if y.size else np.nan, "difference": fit.estimate,
             "lower": fit.lower, "upper": fit.upper, "method": method, "note": fit.note}
@@ -274,7 +282,8 @@ def compare_treatments(params, *, subject, treatment, test, reference, period=No
     ValueError: test='A' is not a value of column 'trt'; its values are ['R', 'T']. Set test to one of them.
     """
     if not isinstance(params, pd.DataFrame):
-        raise TypeError(f"params must be a pandas DataFrame (e.g. pk.nca(...).parameters); got {type(params).__name__}.")
+        raise TypeError("params must be a pandas DataFrame (e.g. pk.nca(...).parameters); "
+                        f"got {type(params).__name__}.")
     parameters = [parameters] if isinstance(parameters, str) else list(parameters)
     lims = limits_per_code(limits, parameters)
     check_options(level, design, lims, parameters)
@@ -289,12 +298,12 @@ def compare_treatments(params, *, subject, treatment, test, reference, period=No
     return Comparison(
         **_frames(parts, chosen, seq), design=chosen, model=DESIGNS[chosen], level=float(level), test=test,
         reference=reference, how_chosen=how,
-        columns={"subject": subject, "treatment": treatment, "period": period, "sequence": sequence})
+        roles={"subject": subject, "treatment": treatment, "period": period, "sequence": sequence})
 
 
 def _study_rows(params, subject, treatment, period, sequence, test, reference, parameters):
     """One row per profile: subject, treatment, role, period, sequence and the parameters as floats."""
-    role = roles(params, treatment, test, reference)
+    role = treatment_roles(params, treatment, test, reference)
     seq = (subject_sequence(params, subject, sequence) if sequence is not None else
            derive_sequences(params, subject, treatment, period) if period is not None else None)
     rows = pd.DataFrame({"subject": params[subject], "treatment": params[treatment], "role": role,

@@ -62,7 +62,8 @@ def plot_ratios(comparison):
     for mask, colour, marker, label in ((ok, _BLUE, "o", "CI within limits"), (~ok, _ORANGE, "s", "CI not within")):
         if mask.any():
             r = tab[mask]
-            ax.errorbar(100 * r["ratio"], y[mask], xerr=[100 * (r["ratio"] - r["lower"]), 100 * (r["upper"] - r["ratio"])],
+            err = [100 * (r["ratio"] - r["lower"]), 100 * (r["upper"] - r["ratio"])]
+            ax.errorbar(100 * r["ratio"], y[mask], xerr=err,
                         fmt=marker, color=colour, capsize=3, ms=6, label=label)
     lo, hi = float(tab["limit_low"].min()), float(tab["limit_high"].max())
     _limit_lines(ax, lo, hi, vertical=True)
@@ -108,7 +109,8 @@ def plot_subject_ratios(comparison, *, ncols=3):
                 ax.plot(x[sel], 100 * p["ratio"].to_numpy()[sel], m, color=colours[seq], ms=5,
                         label=f"sequence {seq}" if seq else "subject")
         r = tab.loc[code]
-        ax.axhspan(100 * r["lower"], 100 * r["upper"], color=_BLUE, alpha=0.15, label=f"{100 * comparison.level:g} % CI")
+        ax.axhspan(100 * r["lower"], 100 * r["upper"], color=_BLUE, alpha=0.15,
+                   label=f"{100 * comparison.level:g} % CI")
         ax.axhline(100 * r["ratio"], color=_BLUE, lw=1.2, label="geometric mean ratio")
         _limit_lines(ax, r["limit_low"], r["limit_high"], vertical=False)
         ax.set_xticks(x, p["subject"].astype(str), rotation=90, fontsize=6)
@@ -160,11 +162,12 @@ def plot_dose_proportionality(result, parameter, *, dose_unit="", unit=""):
            ylabel=f"{parameter} ({unit})" if unit else parameter, title=f"{parameter}: power model (log-log)")
     groups = d.groupby("dose")["normalised"]
     q = (1 + result.level) / 2
-    g = pd.DataFrame({"m": groups.apply(lambda v: np.mean(np.log(v))), "s": groups.apply(lambda v: np.std(np.log(v), ddof=1)),
-                      "n": groups.size()})
+    g = pd.DataFrame({"m": groups.apply(lambda v: np.mean(np.log(v))),
+                      "s": groups.apply(lambda v: np.std(np.log(v), ddof=1)), "n": groups.size()})
     half = stats.t.ppf(q, np.maximum(g["n"] - 1, 1)) * g["s"] / np.sqrt(g["n"])
     a2.plot(d["dose"], d["normalised"], "o", color=_BLUE, ms=3, alpha=0.5, label="profile")
-    a2.errorbar(g.index, np.exp(g["m"]), yerr=[np.exp(g["m"]) - np.exp(g["m"] - half), np.exp(g["m"] + half) - np.exp(g["m"])],
+    gm = np.exp(g["m"])
+    a2.errorbar(g.index, gm, yerr=[gm - np.exp(g["m"] - half), np.exp(g["m"] + half) - gm],
                 fmt="s", color=_ORANGE, capsize=3, ms=6, label=f"geometric mean, {100 * result.level:g} % CI")
     a2.axhline(np.exp(np.mean(np.log(d["normalised"]))), color=_GREY, ls=":", label="overall geometric mean")
     norm_unit = f"{unit}/{dose_unit}" if unit and dose_unit else ""

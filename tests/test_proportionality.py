@@ -60,8 +60,10 @@ def test_smith_criterion_worked_values():
     # Smith et al. 2000: r = 10 gives 0.903-1.097 (from memory); the formula itself, r = 2 and 100
     assert [round(v, 3) for v in slope_criterion(10.0)] == [0.903, 1.097]
     for r in (2.0, 100.0):
-        assert slope_criterion(r) == pytest.approx((1 + np.log(0.8) / np.log(r), 1 + np.log(1.25) / np.log(r)), rel=1e-15)
-    assert slope_criterion(4.0, (0.7, 1.43)) == pytest.approx((1 + np.log(0.7) / np.log(4), 1 + np.log(1.43) / np.log(4)))
+        expected = (1 + np.log(0.8) / np.log(r), 1 + np.log(1.25) / np.log(r))
+        assert slope_criterion(r) == pytest.approx(expected, rel=1e-15)
+    expected = (1 + np.log(0.7) / np.log(4), 1 + np.log(1.43) / np.log(4))
+    assert slope_criterion(4.0, (0.7, 1.43)) == pytest.approx(expected)
 
 
 @pytest.mark.parametrize("b,sd,expected", [(1.0, 0.02, "proportional"), (0.6, 0.02, "not proportional"),
