@@ -223,7 +223,8 @@ def compare_treatments(params, *, subject, treatment, test, reference, period=No
     Parameters
     ----------
     params : DataFrame
-        One row per profile (``pk.nca(...).parameters``): subject, treatment,
+        One row per profile (``pk.nca(...).parameters``; an object with a
+        ``.parameters`` DataFrame is taken as that): subject, treatment,
         optionally period and sequence columns, and the parameter columns.
     subject, treatment : str
         Column names.
@@ -281,6 +282,8 @@ def compare_treatments(params, *, subject, treatment, test, reference, period=No
     ...
     ValueError: test='A' is not a value of column 'trt'; its values are ['R', 'T']. Set test to one of them.
     """
+    if not isinstance(params, pd.DataFrame) and isinstance(getattr(params, "parameters", None), pd.DataFrame):
+        params = params.parameters  # an NCA result object: its parameter table
     if not isinstance(params, pd.DataFrame):
         raise TypeError("params must be a pandas DataFrame (e.g. pk.nca(...).parameters); "
                         f"got {type(params).__name__}.")

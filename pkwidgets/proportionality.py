@@ -145,7 +145,8 @@ def dose_proportionality(params, *, dose, parameters=("CMAX", "AUCIFO"), level=0
     Parameters
     ----------
     params : DataFrame
-        One row per profile (``pk.nca(...).parameters``) with a dose column.
+        One row per profile (``pk.nca(...).parameters``; an object with a
+        ``.parameters`` DataFrame is taken as that) with a dose column.
     dose : str
         Dose column (any unit: the slope does not depend on it).
     parameters : sequence of str
@@ -188,6 +189,8 @@ def dose_proportionality(params, *, dose, parameters=("CMAX", "AUCIFO"), level=0
     ...
     pkwidgets.errors.InputDataError: column(s) ['DOSE', 'CMAX'] are not in the parameter table; its columns are ...
     """
+    if not isinstance(params, pd.DataFrame) and isinstance(getattr(params, "parameters", None), pd.DataFrame):
+        params = params.parameters  # an NCA result object: its parameter table
     if not isinstance(params, pd.DataFrame):
         raise TypeError("params must be a pandas DataFrame (e.g. pk.nca(...).parameters); "
                         f"got {type(params).__name__}.")

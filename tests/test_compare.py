@@ -371,6 +371,10 @@ def test_bad_tables_are_named():
     df = crossover_2x2(np.random.default_rng(82), 6, 6)
     with pytest.raises(TypeError, match="params must be a pandas DataFrame"):
         pk.compare_treatments(df.to_dict(), subject="ID", treatment="TRT", test="T", reference="R")
+
+    class Result:  # an NCA result object with its parameter table (common practice, no source)
+        parameters = df
+    assert compare(Result()).table.equals(compare(df).table)
     dup = pd.concat([df, df.iloc[[0]]], ignore_index=True)
     with pytest.raises(InputDataError, match=r"rows share \{'ID': 's00', 'PER': 1\}"):
         compare(dup)
