@@ -28,7 +28,7 @@ import numpy as np
 import pandas as pd
 from scipy import stats
 
-__all__ = ["Fit", "crossover_ols", "anova_2x2", "crossover_mixed", "paired_t", "welch_t",
+__all__ = ["Fit", "fixed_subject_design", "crossover_ols", "anova_2x2", "crossover_mixed", "paired_t", "welch_t",
            "hodges_lehmann_paired", "hodges_lehmann_shift"]
 
 #: Largest sample for the exact null distributions (larger: normal approximation).
@@ -69,7 +69,7 @@ def _t_interval(estimate, se, df, level):
     return estimate - q * se, estimate + q * se
 
 
-def _fixed_subject_design(subject, period, is_test):
+def fixed_subject_design(subject, period, is_test):
     """Columns: one indicator per subject, periods after the first, the test indicator."""
     _, s = np.unique(np.asarray(subject), return_inverse=True)
     cols = [np.eye(s.max() + 1)[s]]
@@ -104,7 +104,7 @@ def crossover_ols(y, subject, period, is_test, level) -> Fit:
     """
     import statsmodels.api as sm
 
-    fit = sm.OLS(np.asarray(y, float), _fixed_subject_design(subject, period, is_test)).fit()
+    fit = sm.OLS(np.asarray(y, float), fixed_subject_design(subject, period, is_test)).fit()
     est, se, df = float(fit.params[-1]), float(fit.bse[-1]), float(fit.df_resid)
     lo, hi = _t_interval(est, se, df, level)
     return Fit(est, se, df, lo, hi, mse=float(fit.mse_resid))

@@ -160,7 +160,7 @@ def _fit(values, design, level):
             return _not_estimable("needs complete subjects in both sequences (at least 3)"), complete, None
         fit = fits.crossover_ols(frame["y"], frame["subject"], frame["period"], frame["treatment"] == "test", level)
         return fit, complete, fits.anova_2x2(frame)
-    x = fits._fixed_subject_design(frame["subject"], frame["period"], frame["treatment"] == "test")
+    x = fits.fixed_subject_design(frame["subject"], frame["period"], frame["treatment"] == "test")
     df = len(frame) - np.linalg.matrix_rank(x)
     if df < 1:
         return _not_estimable("no residual degrees of freedom left for the mixed model"), complete, None
