@@ -170,6 +170,8 @@ def main(folder=HERE):
     import demo_urine
     out.update(demo_urine.main(folder))
     out.update(demo_tk.main(folder))
+    from demo_sad import main as write_sad  # PKW117-SAD04, single ascending dose (own seed)
+    out["demo_sad.csv"] = write_sad(folder)
     return out
 
 

@@ -4,12 +4,14 @@ Results support qualified review; follow local regulations and SOPs.
 """
 
 from .blq import BLQRules
+from .compare import compare_treatments
 from .engine import ArrayResult, nca_arrays
 from .errors import InputDataError, UnitError
 from .options import ColumnMap, NCAOptions
 from .parameters import PARAMETERS, parameter_table, partial_code
 from .pp import check_pp, to_pp, write_pp
 from .profile import nca_profile, partial_auc
+from .proportionality import dose_proportionality
 from .qc import FLAGS, QCThresholds
 from .record import SelectionRecord, profile_fingerprint
 from .result import NCAResult, ProfileData, concat_results
@@ -41,7 +43,9 @@ __all__ = [
     "UnitError",
     "UrineResult",
     "check_pp",
+    "compare_treatments",
     "concat_results",
+    "dose_proportionality",
     "nca",
     "nca_arrays",
     "nca_profile",
