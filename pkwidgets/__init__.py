@@ -4,6 +4,7 @@ Results support qualified review; follow local regulations and SOPs.
 """
 
 from .blq import BLQRules
+from .combine import concat_results
 from .compare import compare_treatments
 from .engine import ArrayResult, nca_arrays
 from .errors import InputDataError, UnitError
@@ -14,7 +15,7 @@ from .profile import nca_profile, partial_auc
 from .proportionality import dose_proportionality
 from .qc import FLAGS, QCThresholds
 from .record import SelectionRecord, profile_fingerprint
-from .result import NCAResult, ProfileData, concat_results
+from .result import NCAResult, ProfileData
 from .sdtm import SDTMRead, read_sdtm
 from .sparse import SparseResult, nca_sparse
 from .table import NCATable, nca

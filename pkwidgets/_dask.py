@@ -52,7 +52,7 @@ class LazyResult:
         """Compute every partition once and combine them into one :class:`pkwidgets.NCAResult`."""
         import dask
 
-        from .result import concat_results
+        from .combine import concat_results
 
         return concat_results([r for r in dask.compute(*self.partitions) if len(r.parameters)])
 
@@ -95,7 +95,7 @@ def nca_dask(data, spec, run, *, selections=None) -> LazyResult:
 
 def _one_partition(df, number, spec, run, selections):
     """The analysis of one partition, its profile ids made unique; empty tables for an empty partition."""
-    from .result import _renumber
+    from .combine import renumber
 
     if len(df) == 0:
         return _empty_result(df, spec)
@@ -105,16 +105,17 @@ def _one_partition(df, number, spec, run, selections):
         options = options.replace(terminal={k: v for k, v in options.terminal.items() if k in here})
     ex = spec.exclude_times and {k: v for k, v in spec.exclude_times.items() if k in here}
     res = run(df.reset_index(drop=True), replace(spec, options=options, exclude_times=ex), selections=selections)
-    return _renumber(res, number * ID_STRIDE)
+    return renumber(res, number * ID_STRIDE)
 
 
 def _empty_result(df, spec):
     from .result import NCAResult, ProfileArrays
 
     metas = _metas_from(df.iloc[:0], spec)
-    empty = np.empty((0, 1))
-    arrays = ProfileArrays(ids=np.empty(0, np.int64), time=empty, conc=empty, blq=empty.astype(bool), lloq=empty,
-                           exclude=empty.astype(bool), lambda_z_used=empty.astype(bool), terminal=np.empty((0, 2)))
+    empty = np.empty(0)
+    arrays = ProfileArrays(ids=np.empty(0, np.int64), offsets=np.zeros(1, np.int64), time=empty, conc=empty,
+                           blq=empty.astype(bool), lloq=empty, exclude=empty.astype(bool),
+                           lambda_z_used=empty.astype(bool), terminal=np.empty((0, 2)))
     return NCAResult(options=spec.options, units={}, settings={}, by=spec.by, arrays=arrays, **metas)
 
 

@@ -1,9 +1,12 @@
 """Rows of a study table placed into the engine's profiles x samples arrays.
 
-:class:`ProfilePadding` orders the rows of each profile by time, gives every
-row its (profile, sample) slot, pads shorter profiles with NaN, and maps
-per-sample engine outputs back onto the input rows, so that every row is
-accounted for.
+:class:`ProfilePadding` orders the rows of each profile by time and gives
+every row its (profile, sample) slot.  Values are kept flat (profile after
+profile, in time order, no padding); :meth:`ProfilePadding.batches` groups
+profiles of similar length so that each engine call is padded only to the
+longest profile of its own batch: memory follows the data, and one very long
+profile among many short ones does not widen them all.  Engine outputs are
+mapped back onto the input rows, so that every row is accounted for.
 """
 
 from __future__ import annotations
@@ -47,6 +50,9 @@ class ProfilePadding:
         counts = np.diff(np.r_[self.starts, len(order)])
         self.slot = np.arange(len(order)) - np.repeat(self.starts, counts)
         self.shape = (int(prof.max()) + 1, int(counts.max()))
+        self.counts = np.zeros(self.shape[0], dtype=np.int64)
+        self.counts[p_sorted[self.starts]] = counts
+        self.offsets = np.r_[0, np.cumsum(self.counts)]
         self.n = len(t)
         t_sorted = t[order]
         dup = (np.diff(p_sorted) == 0) & (np.diff(t_sorted) == 0)
@@ -59,16 +65,50 @@ class ProfilePadding:
                 f"({src.where_row(a)} and {src.where_row(b)}); keep one sample per time (or average replicates).",
                 file=src.file, line=src.line(a), column=time_column, profile=key)
 
-    def array(self, values):
-        """Per-row values as a (profiles, samples) array, NaN (or False) where no sample."""
-        out = np.zeros(self.shape, dtype=bool) if values.dtype == bool else np.full(self.shape, np.nan)
-        out[self.profile, self.slot] = values[self.order]
+    def batches(self, max_profiles: int, growth: float = 2.0) -> list:
+        """Profile ids in groups of similar sample count (at most ``max_profiles`` each).
+
+        Profiles are taken in order of their count; a new group starts when
+        the count exceeds ``growth`` times the first count of the group (plus
+        8 samples), so padding wastes at most about half of a group's array.
+        """
+        order = np.argsort(self.counts, kind="stable")
+        out, start = [], 0
+        limit = lambda i: growth * self.counts[order[i]] + 8  # noqa: E731
+        for j in range(1, len(order) + 1):
+            if j == len(order) or j - start >= max_profiles or self.counts[order[j]] > limit(start):
+                out.append(np.sort(order[start:j]))
+                start = j
         return out
 
-    def per_row(self, array, fill):
-        """A (profiles, samples) array back onto the input rows; ``fill`` for rows not placed."""
-        out = np.full(self.n, fill, dtype=np.int16 if array.dtype != bool else bool)
-        out[self.order] = array[self.profile, self.slot]
+    def flat(self, values):
+        """Per-row values in flat profile order (profile after profile, in time order)."""
+        return values[self.order]
+
+    def _layout(self, ids):
+        pos = np.full(self.shape[0], -1, dtype=np.int64)
+        pos[ids] = np.arange(len(ids))
+        where = np.flatnonzero(pos[self.profile] >= 0)
+        return where, pos[self.profile[where]], self.slot[where], int(self.counts[ids].max())
+
+    def array(self, flat, ids=None):
+        """Flat values (:meth:`flat`) as a (len(ids), samples) array, NaN (or False) where no sample."""
+        ids = np.arange(self.shape[0]) if ids is None else ids
+        where, rows, slots, width = self._layout(ids)
+        shape = (len(ids), width)
+        out = np.zeros(shape, dtype=bool) if flat.dtype == bool else np.full(shape, np.nan)
+        out[rows, slots] = flat[where]
+        return out
+
+    def into_flat(self, flat, array, ids):
+        """Write a (len(ids), samples) engine array into its places of a flat array."""
+        where, rows, slots, _ = self._layout(ids)
+        flat[where] = array[rows, slots]
+
+    def per_row(self, flat, fill):
+        """Flat per-sample values back onto the input rows; ``fill`` for rows not placed."""
+        out = np.full(self.n, fill, dtype=np.int16 if flat.dtype != bool else bool)
+        out[self.order] = flat
         return out
 
     def unsorted(self, t, prof, keep):

@@ -28,7 +28,7 @@ from .exports import ResultExports
 from .long import long_table
 from .options import NCAOptions
 
-__all__ = ["NCAResult", "ProfileData", "SAMPLE_COLUMNS", "concat_results"]
+__all__ = ["NCAResult", "ProfileData", "ProfileArrays", "SAMPLE_COLUMNS"]
 
 #: The tool's own columns in ``NCAResult.samples`` (user columns keep their names).
 SAMPLE_COLUMNS = {"line": "nca_line", "profile": "nca_profile_id", "time": "nca_time", "used": "nca_used",
@@ -38,9 +38,13 @@ _OLD_NAMES = {v: k for k, v in SAMPLE_COLUMNS.items() if k != "time"}
 
 @dataclass(frozen=True)
 class ProfileArrays:
-    """The engine inputs of every profile, row ``i`` belonging to profile id ``ids[i]``."""
+    """The engine inputs of every profile, flat: row ``i`` (profile id ``ids[i]``) owns ``offsets[i]:offsets[i+1]``.
+
+    Samples are in time order, without padding, so memory follows the data.
+    """
 
     ids: np.ndarray
+    offsets: np.ndarray
     time: np.ndarray
     conc: np.ndarray
     blq: np.ndarray
@@ -52,20 +56,29 @@ class ProfileArrays:
     partial: dict = field(default_factory=dict)  # name -> (start (profiles,), end (profiles,))
     keys: list = field(default_factory=list)  # canonical key text of each row
 
+    FLAT = ("time", "conc", "blq", "lloq", "exclude", "lambda_z_used")
+
     def rows_of(self, ids) -> np.ndarray:
         """Array rows of the given profile ids."""
         pos = {int(p): i for i, p in enumerate(self.ids)}
         return np.array([pos[int(p)] for p in ids], dtype=np.int64)
 
+    def span(self, row) -> slice:
+        """Flat positions of array row ``row``."""
+        return slice(int(self.offsets[row]), int(self.offsets[row + 1]))
+
     def take(self, rows) -> "ProfileArrays":
         """The same arrays for a subset of rows."""
+        rows = np.asarray(rows, dtype=np.int64)
+        lengths = np.diff(self.offsets)[rows]
+        flat = np.concatenate([np.arange(self.offsets[r], self.offsets[r + 1]) for r in rows]) if len(rows) else \
+            np.empty(0, np.int64)
         pick = lambda a: None if a is None else (a if np.ndim(a) == 0 else np.asarray(a)[rows])  # noqa: E731
         return ProfileArrays(
-            ids=self.ids[rows], time=self.time[rows], conc=self.conc[rows], blq=self.blq[rows],
-            lloq=self.lloq[rows], exclude=self.exclude[rows], lambda_z_used=self.lambda_z_used[rows],
-            terminal=self.terminal[rows], per_profile={k: pick(v) for k, v in self.per_profile.items()},
-            partial={k: (pick(s), pick(e)) for k, (s, e) in self.partial.items()},
-            keys=[self.keys[i] for i in rows])
+            ids=self.ids[rows], offsets=np.r_[0, np.cumsum(lengths)], terminal=self.terminal[rows],
+            **{k: getattr(self, k)[flat] for k in self.FLAT},
+            per_profile={k: pick(v) for k, v in self.per_profile.items()},
+            partial={k: (pick(s), pick(e)) for k, (s, e) in self.partial.items()}, keys=[self.keys[i] for i in rows])
 
 
 @dataclass(frozen=True)
@@ -229,7 +242,7 @@ class NCAResult(ResultExports):
         row = params.iloc[0]
         i = int(self.arrays.rows_of([pid])[0])
         a = self.arrays
-        n = int(np.sum(~np.isnan(a.time[i])))
+        sl = a.span(i)
         win = a.terminal[i]
         scalar = lambda name: (None if a.per_profile.get(name) is None  # noqa: E731
                                else float(np.broadcast_to(a.per_profile[name], (len(a.ids),))[i]))
@@ -238,8 +251,8 @@ class NCAResult(ResultExports):
             units=dict(self.units),
             samples=self.samples.loc[self.samples[SAMPLE_COLUMNS["profile"]] == pid],
             flags=self.flags.loc[self.flags["profile_id"] == pid],
-            time=a.time[i, :n], conc=a.conc[i, :n], blq=a.blq[i, :n], lloq=a.lloq[i, :n], exclude=a.exclude[i, :n],
-            lambda_z_used=a.lambda_z_used[i, :n], terminal=None if np.isnan(win).any() else tuple(win.tolist()),
+            time=a.time[sl], conc=a.conc[sl], blq=a.blq[sl], lloq=a.lloq[sl], exclude=a.exclude[sl],
+            lambda_z_used=a.lambda_z_used[sl], terminal=None if np.isnan(win).any() else tuple(win.tolist()),
             dose=scalar("dose"), duration=scalar("duration"), tau=scalar("tau"),
             partial={k: (float(s[i]), float(e[i])) for k, (s, e) in a.partial.items()})
 
@@ -335,67 +348,3 @@ class NCAResult(ResultExports):
             return getattr(self.parameters, name)
         raise AttributeError(f"'NCAResult' has no attribute {name!r}; the tables are .parameters, .samples and "
                              ".flags.")
-
-
-def concat_results(results) -> NCAResult:
-    """Combine results of the same options and profile columns; profile ids are renumbered.
-
-    Raises
-    ------
-    ValueError
-        If the results differ in ``by``, options or units, or share a profile key.
-    """
-    results = list(results)
-    if not results:
-        raise ValueError("concat_results needs at least one NCAResult.")
-    first = results[0]
-    for r in results[1:]:
-        for what in ("by", "options", "units"):
-            if getattr(r, what) != getattr(first, what):
-                raise ValueError(f"results differ in {what} ({getattr(first, what)!r} vs {getattr(r, what)!r}); "
-                                 "only results of the same analysis can be combined.")
-    shifted, offset = [], 0
-    for r in results:
-        shifted.append(_renumber(r, offset))
-        offset += int(r.parameters["profile_id"].max()) + 1 if len(r.parameters) else 0
-    params = pd.concat([r.parameters for r in shifted], ignore_index=True)
-    dup = params.duplicated(list(first.by), keep=False)
-    if dup.any():
-        raise ValueError(f"profile key(s) {params.loc[dup, list(first.by)].drop_duplicates().values.tolist()[:5]} "
-                         "occur in more than one result; keys must be unique.")
-    return replace(first, parameters=params,
-                   samples=pd.concat([r.samples for r in shifted], ignore_index=True),
-                   flags=pd.concat([r.flags for r in shifted], ignore_index=True),
-                   settings={**first.settings, "combined_from": [r.settings.get("source") for r in results]},
-                   arrays=_concat_arrays([r.arrays for r in shifted]))
-
-
-def _renumber(r: NCAResult, offset: int) -> NCAResult:
-    pcol = SAMPLE_COLUMNS["profile"]
-    samples = r.samples.copy()
-    samples[pcol] = np.where(samples[pcol] >= 0, samples[pcol] + offset, samples[pcol])
-    return replace(r, parameters=r.parameters.assign(profile_id=r.parameters["profile_id"] + offset),
-                   samples=samples, flags=r.flags.assign(profile_id=r.flags["profile_id"] + offset),
-                   arrays=replace(r.arrays, ids=r.arrays.ids + offset))
-
-
-def _concat_arrays(parts) -> ProfileArrays:
-    width = max(p.time.shape[1] for p in parts)
-
-    def pad(a, fill):
-        return np.concatenate([np.pad(x, ((0, 0), (0, width - x.shape[1])), constant_values=fill) for x in a])
-
-    def per(values):
-        return None if any(v is None for v in values) else np.concatenate(
-            [np.broadcast_to(v, (len(p.ids),)) for v, p in zip(values, parts)])
-
-    return ProfileArrays(
-        ids=np.concatenate([p.ids for p in parts]), time=pad([p.time for p in parts], np.nan),
-        conc=pad([p.conc for p in parts], np.nan), blq=pad([p.blq for p in parts], False),
-        lloq=pad([p.lloq for p in parts], np.nan), exclude=pad([p.exclude for p in parts], False),
-        lambda_z_used=pad([p.lambda_z_used for p in parts], False),
-        terminal=np.concatenate([p.terminal for p in parts]),
-        per_profile={k: per([p.per_profile.get(k) for p in parts]) for k in parts[0].per_profile},
-        partial={k: (per([p.partial[k][0] for p in parts]), per([p.partial[k][1] for p in parts]))
-                 for k in parts[0].partial},
-        keys=[k for p in parts for k in p.keys])

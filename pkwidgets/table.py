@@ -19,14 +19,15 @@ import pandas as pd
 from ._dask import is_dask_frame, nca_dask
 from .accumulation import accumulation_ratios
 from .columns import TableSource, terminal_windows
-from .engine import SampleValueError, nca_arrays
+from .batches import run_batches
+from .engine import SampleValueError
 from .errors import InputDataError
 from .options import ColumnMap, NCAOptions, build_options
 from .keys import check_separating_columns
 from .padding import ProfilePadding
 from .profile import ordered_codes
 from .qc import FLAGS, STATUS_REASONS, SampleStatus, flag_message
-from .record import apply_selections, canonical_key, coerce_record
+from .record import canonical_key, coerce_record
 from .result import SAMPLE_COLUMNS, NCAResult, ProfileArrays
 from .units import StudyUnits, coerce_units
 
@@ -181,17 +182,18 @@ def nca_frame(data, spec: StudySpec, *, selections=None, sep=",", decimal=".", e
     if per_profile["dose_time"] is not None:
         values["time"] = values["time"] - per_profile["dose_time"][np.maximum(prof, 0)]
     pad = ProfilePadding(values["time"], prof, values["keep"], src, keys, cols.time)
-    arrays = {k: pad.array(values[k]) for k in ("time", "conc", "blq", "lloq")}
-    arrays["exclude"] = pad.array(src.exclusions(cols.exclude or spec.exclude_times, prof, keys, values["time"], by))
-    arrays["terminal"] = terminal_windows(spec.options.terminal, keys, by, len(keys))
+    exclude = src.exclusions(cols.exclude or spec.exclude_times, prof, keys, values["time"], by)
+    flat = {k: pad.flat(v) for k, v in {**values, "exclude": exclude}.items() if k != "keep"}
+    terminal = terminal_windows(spec.options.terminal, keys, by, len(keys))
     key_texts = [canonical_key(tuple(r)) for r in keys.itertuples(index=False)]
-    sel = _apply_record(selections, key_texts, arrays, src.name, spec.options) if selections is not None else None
-    res = _run_engine(arrays, per_profile, spec.options, pad, src, keys, cols.conc)
-    res.flags["times_sorted"] = res.flags["times_sorted"] | pad.unsorted(values["time"], prof, values["keep"])
-    if sel is not None:
-        res.flags["selection_stale"] = sel.pop("stale_mask")
-    res.settings["key_notes"] = key_notes
-    return _assemble(res, spec, src, keys, prof, values["time"], pad, arrays, per_profile, key_texts, sel)
+    run = _run_engine(pad, flat, per_profile, terminal, spec.options, key_texts, selections, src, keys, cols.conc)
+    run.flags["times_sorted"] = run.flags["times_sorted"] | pad.unsorted(values["time"], prof, values["keep"])
+    sel = None
+    if selections is not None:
+        run.flags["selection_stale"] = run.selection["stale"]
+        sel = _selection_settings(selections, run.selection, key_texts, src.name)
+    run.settings["key_notes"] = key_notes
+    return _assemble(run, spec, src, keys, prof, values["time"], pad, flat, per_profile, key_texts, sel)
 
 
 def _read_samples(src: TableSource, spec: StudySpec, decimal) -> dict:
@@ -251,17 +253,8 @@ def _per_profile_values(src: TableSource, spec: StudySpec, prof, keys, decimal) 
     return out
 
 
-def _apply_record(rec, key_texts, arrays, source_name, options) -> dict:
-    """Recorded hand choices replace the window and exclusions of their profiles (fingerprint permitting).
-
-    The fingerprint covers what the fit sees: times, values, BLQ samples with
-    their LLOQ, the BLQ rules and the area method (:mod:`pkwidgets.fingerprint`).
-    """
-    replay = apply_selections(rec, key_texts, arrays["time"], arrays["conc"], arrays["blq"], arrays["exclude"],
-                              arrays["terminal"], lloq=arrays["lloq"], blq_rules=options.blq_rules,
-                              auc_method=options.auc_method)
-    term, excl, stale, applied, fps = replay
-    arrays["terminal"], arrays["exclude"] = term, excl
+def _selection_settings(rec, replay: dict, key_texts, source_name) -> dict:
+    """What the record did: applied, stale (with why), and recorded profiles absent from the data (warned)."""
     recorded = set(rec.states())
     unmatched = sorted(recorded - {tuple(k) for k in key_texts})
     if unmatched:
@@ -270,20 +263,21 @@ def _apply_record(rec, key_texts, arrays, source_name, options) -> dict:
                 if len(unmatched) == len(recorded) else "")
         warnings.warn(f"selection record {rec.path or '(not saved)'} has choices for {len(unmatched)} profile(s) "
                       f"not in {source_name} ({names}); they were not applied.{hint}", stacklevel=4)
-    return {"path": rec.path, "applied": [key_texts[p] for p in np.flatnonzero(applied)],
-            "stale": [key_texts[p] for p in np.flatnonzero(stale)], "fingerprints": fps, "unmatched": unmatched,
-            "problems": {"/".join(k): v for k, v in replay.problems.items()}, "stale_mask": stale}
+    return {"path": rec.path, "applied": [key_texts[p] for p in np.flatnonzero(replay["applied"])],
+            "stale": [key_texts[p] for p in np.flatnonzero(replay["stale"])], "fingerprints": replay["fingerprints"],
+            "unmatched": unmatched, "problems": {"/".join(k): v for k, v in replay["problems"].items()}}
 
 
-def _run_engine(arrays, per_profile, options, pad, src, keys, conc_column):
-    """One engine call for the whole study; a sample error names its file, line and profile."""
-    terminal = arrays["terminal"]
+def _run_engine(pad, flat, per_profile, terminal, options, key_texts, record, src, keys, conc_column):
+    """The engine over batches of similar length; a sample error names its file, line and profile.
+
+    Recorded hand choices replace the window and exclusions of their profiles
+    when the fingerprint of what the fit sees still matches
+    (:mod:`pkwidgets.fingerprint`: times, values, BLQ samples with their
+    LLOQ, BLQ rules and area method).
+    """
     try:
-        return nca_arrays(arrays["time"], arrays["conc"], dose=per_profile["dose"], route=options.route,
-                          duration=per_profile["duration"], tau=per_profile["tau"], auc_method=options.auc_method,
-                          terminal="auto" if isinstance(terminal, str) else terminal, exclude=arrays["exclude"],
-                          blq=arrays["blq"], lloq=arrays["lloq"], partial=options.partial,
-                          blq_rules=options.blq_rules, qc=options.qc)
+        return run_batches(pad, flat, per_profile, terminal, options, key_texts, record)
     except SampleValueError as exc:
         i = pad.row_of(exc.profile, exc.sample)
         key = keys.iloc[exc.profile].to_dict()
@@ -291,40 +285,38 @@ def _run_engine(arrays, per_profile, options, pad, src, keys, conc_column):
                              file=src.file, line=src.line(i), column=conc_column, profile=key) from None
 
 
-def _assemble(res, spec, src, keys, prof, time, pad, arrays, per_profile, key_texts, sel) -> NCAResult:
+def _assemble(run, spec, src, keys, prof, time, pad, flat, per_profile, key_texts, sel) -> NCAResult:
     """The result tables, joined by profile id, and the stated settings."""
     by, P = list(spec.by), len(keys)
-    params = dict(res)
+    params = dict(run.params)
     if spec.options.occasion is not None:
-        params.update(accumulation_ratios(res, keys, by, spec.options.occasion, per_profile["tau"]))
+        params.update(accumulation_ratios(params, keys, by, spec.options.occasion, per_profile["tau"]))
     codes = ordered_codes(params)
     unit_of = (lambda k: spec.units.unit_of(k)) if spec.units is not None else (lambda k: ("", 1.0))
     units = {k: unit_of(k)[0] for k in codes}
     ids = np.arange(P)
     parameters = pd.concat([keys.reset_index(drop=True), pd.DataFrame({"profile_id": ids}),
                             pd.DataFrame({k: params[k] * unit_of(k)[1] for k in codes})], axis=1)
-    samples = _sample_account(src, res, pad, prof, time)
-    flags = _flag_table(res.flags, keys, spec.options.qc)
-    term = arrays["terminal"]
-    term = np.full((P, 2), np.nan) if isinstance(term, str) else np.broadcast_to(np.asarray(term, float), (P, 2))
+    samples = _sample_account(src, run, pad, prof, time)
+    flags = _flag_table(run.flags, keys, spec.options.qc)
     profile_arrays = ProfileArrays(
-        ids=ids, time=arrays["time"], conc=arrays["conc"], blq=arrays["blq"], lloq=arrays["lloq"],
-        exclude=arrays["exclude"], lambda_z_used=res.lambda_z_used, terminal=np.array(term),
-        per_profile={k: per_profile[k] for k in ("dose", "duration", "tau")}, partial=dict(res.partial_bounds),
+        ids=ids, offsets=pad.offsets, time=flat["time"], conc=flat["conc"], blq=flat["blq"], lloq=flat["lloq"],
+        exclude=run.exclude, lambda_z_used=run.lambda_z_used, terminal=run.terminal,
+        per_profile={k: per_profile[k] for k in ("dose", "duration", "tau")}, partial=dict(run.partial_bounds),
         keys=key_texts)
-    settings = _settings(res, spec, src, P, samples, sel)
+    settings = _settings(run, spec, src, P, samples, sel)
     return NCAResult(parameters=parameters, samples=samples, flags=flags, options=spec.options, units=units,
                      settings=settings, by=spec.by, arrays=profile_arrays)
 
 
-def _sample_account(src, res, pad, prof, time) -> pd.DataFrame:
+def _sample_account(src, run, pad, prof, time) -> pd.DataFrame:
     """Every input row as given, with the tool's own columns: used or not, why, in the lambda-z fit."""
     rows = src.original()
     taken = [c for c in SAMPLE_COLUMNS.values() if c in rows.columns]
     if taken:
         raise InputDataError(f"{src.name}: column(s) {taken} use the prefix 'nca_' that the result keeps for its "
                              "own columns; rename them.", file=src.file, column=taken[0])
-    status = pad.per_row(res.status, fill=-1)
+    status = pad.per_row(run.status, fill=-1)
     reasons = np.array([STATUS_REASONS[s] for s in sorted(STATUS_REASONS)] + [REASON_NO_TIME], dtype=object)
     if src.file is not None:
         rows.insert(0, SAMPLE_COLUMNS["line"], src.lines())
@@ -332,7 +324,7 @@ def _sample_account(src, res, pad, prof, time) -> pd.DataFrame:
     rows[SAMPLE_COLUMNS["time"]] = time
     rows[SAMPLE_COLUMNS["used"]] = status == SampleStatus.USED
     rows[SAMPLE_COLUMNS["reason"]] = reasons[np.where(status < 0, len(reasons) - 1, status)]
-    rows[SAMPLE_COLUMNS["lambda_z"]] = pad.per_row(res.lambda_z_used, fill=False)
+    rows[SAMPLE_COLUMNS["lambda_z"]] = pad.per_row(run.lambda_z_used, fill=False)
     return rows
 
 
@@ -347,10 +339,10 @@ def _flag_table(flags, keys, qc) -> pd.DataFrame:
                        "message": [flag_message(nm, qc) for _, nm in raised]})], axis=1)
 
 
-def _settings(res, spec, src, P, samples, sel) -> dict:
+def _settings(run, spec, src, P, samples, sel) -> dict:
     """The run as stated in records: source, columns, units, rules, counts, applied selections."""
     cols, o = spec.columns, spec.options
-    settings = dict(res.settings)
+    settings = dict(run.settings)
     rules = settings["blq_rules"]
     settings.update(
         source=src.name, by=list(spec.by),

@@ -73,3 +73,29 @@ def test_plasma_and_urine_of_one_subject_are_refused_as_one_profile():
     plasma = pk.nca(pc, by=["USUBJID", "PCSPEC"], time="PCTPTNUM", conc="PCSTRESC", dose=None)
     counts = pc.groupby(["USUBJID", "PCSPEC"]).ngroups
     assert len(plasma.parameters) == counts
+
+
+def test_memory_follows_the_data_not_the_longest_profile():
+    # one 10,000-sample profile among 2,000 short ones: each engine batch is padded only to its own longest
+    # profile (pkwidgets.padding.ProfilePadding.batches). Reference values: scipy.integrate.trapezoid
+    # (linear trapezoidal rule) on each profile's own samples.
+    import tracemalloc
+
+    from scipy.integrate import trapezoid
+
+    rng = np.random.default_rng(7)
+    short_t = np.array([0.0, 1, 2, 4, 8, 12])
+    short = pd.DataFrame({"subject": np.repeat(np.arange(2000), 6), "time": np.tile(short_t, 2000),
+                          "conc": np.tile([0.0, 8, 10, 6, 3, 1.5], 2000) * rng.uniform(0.5, 2, 12000)})
+    long_t = np.linspace(0, 100, 10_000)
+    long = pd.DataFrame({"subject": 5000, "time": long_t, "conc": 50 * np.exp(-0.05 * long_t) * (long_t > 0)})
+    frame = pd.concat([short, long], ignore_index=True)
+    padded_bytes = 2001 * 10_000 * 8  # one (profiles x longest) float64 array
+    tracemalloc.start()
+    res = pk.nca(frame, by="subject", dose=None)
+    peak = tracemalloc.get_traced_memory()[1]
+    tracemalloc.stop()
+    assert peak < padded_bytes  # the whole run needs less than ONE padded array would
+    assert res.profile(5000).parameters["AUCLST"] == pytest.approx(trapezoid(long["conc"], long_t), rel=1e-12)
+    first = short[short["subject"] == 0]
+    assert res.profile(0).parameters["AUCLST"] == pytest.approx(trapezoid(first["conc"], first["time"]), rel=1e-12)
