@@ -121,13 +121,13 @@ def notebook_parameters(notebook) -> dict:
     RunError
         If the notebook does not exist or is not a Jupyter notebook.
     """
-    import papermill
-
     notebook = os.fspath(notebook)
     if not os.path.isfile(notebook):
         what = "is a folder" if os.path.isdir(notebook) else "not found"
         raise RunError(f"notebook {notebook} {what}: give the path of an analysis notebook, e.g. "
                        f"analyses/single_dose.ipynb.")
+    import papermill
+
     try:
         found = papermill.inspect_notebook(notebook)
     except Exception as exc:  # nbformat/JSON errors of a file that is not a notebook

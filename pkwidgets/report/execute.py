@@ -129,8 +129,10 @@ def run_analysis(notebook, output_dir, parameters=None, *, kernel_name="python3"
         is unchanged and ``output_dir + ".failed"`` holds the failed run).
     """
     notebook = os.path.abspath(os.fspath(notebook))
-    declared = notebook_parameters(notebook)
+    if not os.path.isfile(notebook):  # before the output folder's checks: the first thing to name
+        notebook_parameters(notebook)
     final = check_output_folder(output_dir)
+    declared = notebook_parameters(notebook)
     params = _resolve(notebook, declared, parameters, final)
     stem = os.path.splitext(os.path.basename(notebook))[0]
     with staged_folder(final, carry=[p for p in [params.get("selection_record")] if p]) as stage:
