@@ -41,6 +41,7 @@ def _add_run(sub) -> None:
                    help="several parameters as a YAML mapping, or the path of a YAML file")
     p.add_argument("--timeout", type=float, default=600, help="seconds per cell (default 600)")
     p.add_argument("-h", "--help", action="store_true", help="show this help and the notebook's parameters")
+    p.set_defaults(handler=_run, parser=p)
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -50,14 +51,17 @@ def build_parser() -> argparse.ArgumentParser:
     _add_run(sub)
     p = sub.add_parser("params", help="list an analysis notebook's parameters with defaults")
     p.add_argument("notebook", metavar="NOTEBOOK")
+    p.set_defaults(handler=_params, parser=p)
     p = sub.add_parser("report", help="write the HTML record of an executed analysis notebook",
                        description="Write the offline HTML record (code hidden) beside an executed notebook, or "
                                    "with --refresh re-execute analysis notebooks in place (stored outputs for nbval).")
     p.add_argument("paths", nargs="+", metavar="PATH", help="EXECUTED.ipynb [RECORD.html], or notebooks with --refresh")
     p.add_argument("--with-code", action="store_true", help="keep the code cells in the record")
     p.add_argument("--refresh", action="store_true", help="re-execute the given notebooks in place")
+    p.set_defaults(handler=_report, parser=p)
     p = sub.add_parser("demo", help="run the single-dose analysis on the bundled synthetic demo study")
     p.add_argument("--output-dir", default=None, help="default: results/single_dose in the checkout")
+    p.set_defaults(handler=_demo, parser=p)
     return ap
 
 
@@ -129,12 +133,9 @@ def _demo(args, parser) -> int:
 
 def main(argv=None) -> int:
     """Entry point of the ``pkwidgets`` console script; returns the exit status."""
-    parser = build_parser()
-    args = parser.parse_args(argv)
-    sub = parser._subparsers._group_actions[0].choices[args.command]  # noqa: SLF001 - for its usage text
-    command = {"run": _run, "params": _params, "report": _report, "demo": _demo}[args.command]
+    args = build_parser().parse_args(argv)
     try:
-        return command(args, sub)
+        return args.handler(args, args.parser)
     except ImportError as exc:
         print(f"pkwidgets {args.command}: error: {exc.name or exc} is missing: {_EXTRA}", file=sys.stderr)
     except KeyboardInterrupt:
