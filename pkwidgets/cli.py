@@ -51,6 +51,7 @@ def build_parser() -> argparse.ArgumentParser:
     _add_run(sub)
     p = sub.add_parser("params", help="list an analysis notebook's parameters with defaults")
     p.add_argument("notebook", metavar="NOTEBOOK")
+    p.add_argument("--markdown", action="store_true", help="as a Markdown table")
     p.set_defaults(handler=_params, parser=p)
     p = sub.add_parser("report", help="write the HTML record of an executed analysis notebook",
                        description="Write the offline HTML record (code hidden) beside an executed notebook, or "
@@ -151,7 +152,7 @@ def main(argv=None) -> int:
 def _params(args, parser) -> int:
     from .report import describe_parameters, notebook_parameters
 
-    print(describe_parameters(args.notebook, notebook_parameters(args.notebook)))
+    print(describe_parameters(args.notebook, notebook_parameters(args.notebook), markdown=args.markdown))
     return 0
 
 

@@ -47,7 +47,7 @@ def _cli(*args, cwd=ROOT, timeout=300, prefix=()):
 
 def _one_error_line(result, command="run"):
     """The failure is one line on stderr, with no traceback, and a non-zero exit status."""
-    lines = [ln for ln in result.stderr.splitlines() if ln.strip() and "[IPKernelApp]" not in ln]
+    lines = [ln for ln in result.stderr.splitlines() if ln.strip()]
     assert result.returncode == 1, (result.returncode, result.stderr)
     assert len(lines) == 1, result.stderr
     assert lines[0].startswith(f"pkwidgets {command}: error: ") and "Traceback" not in result.stderr
@@ -125,6 +125,10 @@ def test_good_run_then_failed_run_leaves_the_previous_complete_run(mini, theoph,
     text = (failed / "FAILED.txt").read_text()
     assert text.startswith("This run FAILED") and "theoph_bad.csv" in text and "MANIFEST.sha256" not in os.listdir(failed)
     assert not [p for p in tmp_path.iterdir() if ".staging-" in p.name]  # nothing half-written left beside
+
+    assert main(["report", str(out / "mini.ipynb")]) == 0  # a re-written record: the manifest follows it
+    manifest = dict(reversed(line.split("  ", 1)) for line in (out / "MANIFEST.sha256").read_text().splitlines())
+    assert manifest == {k: v for k, v in _digests(out).items() if k != "MANIFEST.sha256"}
 
 
 @pytest.mark.parametrize("text, expected", [
@@ -227,14 +231,21 @@ def test_report_of_a_missing_notebook_is_one_clear_line(tmp_path):
 
 # ---------------------------------------------------------------------------- parameters listed
 
-def test_params_lists_every_declared_parameter_with_default_and_comment():
+def test_params_lists_every_declared_parameter_with_default_and_comment(capsys):
     declared = papermill.inspect_notebook(str(SINGLE))  # the reference: papermill's own reading
-    r = _cli("params", SINGLE)
-    assert r.returncode == 0, r.stderr
+    assert main(["params", str(SINGLE)]) == 0
+    out = capsys.readouterr().out
     for name, p in declared.items():
-        assert f"  {name} " in r.stdout and f"default {p['default']}" in r.stdout
+        assert f"  {name} " in out and f"default {p['default']}" in out
         if p["help"]:
-            assert p["help"] in r.stdout
+            assert p["help"] in out
+
+
+def test_params_as_a_markdown_table(capsys):
+    declared = papermill.inspect_notebook(str(SINGLE))
+    assert main(["params", str(SINGLE), "--markdown"]) == 0
+    rows = [ln for ln in capsys.readouterr().out.splitlines() if ln.startswith("| `")]
+    assert [r.split("`")[1] for r in rows] == list(declared)  # one row per parameter, in the notebook's order
 
 
 def test_run_help_with_a_notebook_lists_its_parameters(capsys):

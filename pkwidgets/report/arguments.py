@@ -163,14 +163,17 @@ def default_value(declared, name):
         return None
 
 
-def describe_parameters(notebook, declared) -> str:
-    """Text listing of a notebook's parameters: name, default, and the notebook's comment or
-    :data:`~pkwidgets.report.notebook.PARAMETER_HELP`."""
+def describe_parameters(notebook, declared, *, markdown=False) -> str:
+    """A notebook's parameters: name, default, and the notebook's comment or
+    :data:`~pkwidgets.report.notebook.PARAMETER_HELP`; as text, or as a Markdown table (for the README)."""
+    rows = [(name, p["default"], p["help"] or PARAMETER_HELP.get(name, "")) for name, p in declared.items()]
+    if markdown:
+        lines = ["| parameter | default | meaning |", "|---|---|---|"]
+        return "\n".join(lines + [f"| `{n}` | `{d}` | {t.replace('|', '/')} |" for n, d, t in rows])
     width = max([len(n) for n in declared] + [4])
     lines = [f"Parameters of {notebook} (set with -p NAME VALUE, or -y 'NAME: VALUE'; values are YAML):"]
-    for name, p in declared.items():
-        lines.append(f"  {name:<{width}}  default {p['default']}")
-        text = p["help"] or PARAMETER_HELP.get(name, "")
+    for name, default, text in rows:
+        lines.append(f"  {name:<{width}}  default {default}")
         if text:
             lines.append(f"  {'':<{width}}  {text}")
     return "\n".join(lines)

@@ -27,6 +27,8 @@ __all__ = ["run_analysis", "refresh_stored_outputs", "SELECTION_FILE"]
 #: Default selection record in the output folder (read by the run, kept across runs).
 SELECTION_FILE = "terminal_selection.json"
 _PATH_PARAMETERS = ("data_path", "selection_record")
+#: The kernel logs errors only: its start-up notices (local TCP transport) would bury the run's one-line outcome.
+_KERNEL_ARGUMENTS = ["--IPKernelApp.log_level=ERROR"]
 
 
 def _data_file(notebook, declared, params) -> str | None:
@@ -74,7 +76,8 @@ def _execute(notebook, out_nb, params, *, kernel_name, timeout) -> None:
 
     try:
         pm.execute_notebook(notebook, out_nb, parameters=params, kernel_name=kernel_name,
-                            execution_timeout=timeout, progress_bar=False, cwd=os.path.dirname(notebook))
+                            execution_timeout=timeout, progress_bar=False, cwd=os.path.dirname(notebook),
+                            extra_arguments=_KERNEL_ARGUMENTS)
     except pm.PapermillExecutionError as exc:
         message = " ".join(str(exc.evalue).split())
         raise RunError(f"{os.path.basename(notebook)} failed in cell {exc.exec_count}: {exc.ename}: "
