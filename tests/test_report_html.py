@@ -125,3 +125,20 @@ def test_no_git_commit_outside_a_checkout(tmp_path):
 def test_old_run_info_without_software_says_not_recorded():
     header = header_html({"notebook": "single_dose", "pkwidgets_version": "0.1.0"})
     assert "<tr><td>pkwidgets</td><td>0.1.0</td></tr>" in header and "not recorded" in header
+
+
+def test_run_info_pins_data_and_selection_files_and_software(tmp_path):
+    from types import SimpleNamespace
+
+    from pkwidgets.report import run_info
+
+    data, record = tmp_path / "study.csv", tmp_path / "terminal_selection.json"
+    data.write_text("subject,time,conc\n1,0,0\n1,1,5\n")
+    record.write_text('{"schema": 1, "entries": []}\n')
+    table = SimpleNamespace(settings={"route": "extravascular", "selections": {"path": str(record), "applied": []}})
+    info = run_info(data, table, notebook="x", parameters={})
+    assert info["data_sha256"] == hashlib.sha256(data.read_bytes()).hexdigest()  # hashlib
+    assert info["selection_sha256"] == hashlib.sha256(record.read_bytes()).hexdigest()
+    assert info["software"]["numpy"] == numpy.__version__ and info["software"]["python"] == platform.python_version()
+    none = run_info(data, SimpleNamespace(settings={"selections": None}), notebook="x", parameters={})
+    assert none["selection_file"] is None and none["selection_sha256"] is None
