@@ -46,7 +46,8 @@ def _add_run(sub) -> None:
 
 def build_parser() -> argparse.ArgumentParser:
     """The argument parser of ``pkwidgets`` (subcommands run, params, report, demo)."""
-    ap = argparse.ArgumentParser(prog="pkwidgets", description=__doc__.split("\n\n")[0])
+    ap = argparse.ArgumentParser(prog="pkwidgets", description="Non-compartmental analysis notebooks, run "
+                                 f"unattended, with their offline study records. {_CAUTION}")
     sub = ap.add_subparsers(dest="command", metavar="COMMAND", required=True)
     _add_run(sub)
     p = sub.add_parser("params", help="list an analysis notebook's parameters with defaults")

@@ -22,10 +22,12 @@ import json
 import os
 import re
 import shutil
+import signal
 import stat
 import subprocess
 import sys
 import tempfile
+import time
 from pathlib import Path
 
 import nbformat
@@ -81,6 +83,7 @@ output_dir = "out"
 dose = 4.0  # one dose (mg/kg) for every profile
 time_unit = "h"
 selection_record = None
+pause_s = 0  # seconds to wait after the exports (a run to kill while its files are written)
 '''
 
 MINI_BODY = '''import pkwidgets as pk
@@ -100,13 +103,14 @@ def mini(tmp_path_factory):
     nb.metadata["kernelspec"] = {"name": "python3", "display_name": "Python 3", "language": "python"}
     cell = nbformat.v4.new_code_cell(MINI_PARAMETERS)
     cell.metadata["tags"] = ["parameters"]
-    nb.cells = [cell, nbformat.v4.new_code_cell(MINI_BODY)]
+    nb.cells = [cell, nbformat.v4.new_code_cell(MINI_BODY),
+                nbformat.v4.new_code_cell("import time\ntime.sleep(pause_s)")]
     path = tmp_path_factory.mktemp("nb") / "mini.ipynb"
     nbformat.write(nb, path)
     return path
 
 
-def test_good_run_then_failed_run_leaves_the_previous_complete_run(mini, theoph, tmp_path):
+def test_good_run_then_killed_and_failed_runs_leave_the_previous_complete_run(mini, theoph, tmp_path):
     good, bad = theoph
     out = tmp_path / "study"
     assert main(["run", str(mini), str(out), "-p", "data_path", str(good), "-p", "dose", "1e3"]) == 0
@@ -116,6 +120,12 @@ def test_good_run_then_failed_run_leaves_the_previous_complete_run(mini, theoph,
     manifest = dict(reversed(line.split("  ", 1)) for line in (out / "MANIFEST.sha256").read_text().splitlines())
     assert manifest == {k: v for k, v in before.items() if k != "MANIFEST.sha256"}  # every file, hashlib digests
     assert {"mini.ipynb", "mini.html", "run_info.json", "parameters_wide.csv"} <= set(manifest)
+
+    _kill_after_exports(mini, good, out)
+    assert _digests(out) == before  # killed (SIGKILL) after writing its CSVs: the previous run, byte for byte
+    killed = [p for p in tmp_path.iterdir() if ".staging-" in p.name]
+    assert len(killed) == 1 and (killed[0] / "IN_PROGRESS.txt").exists()  # the interrupted run says what it is
+    shutil.rmtree(killed[0])
 
     second = _cli("run", mini, out, "-p", "data_path", bad)
     line = _one_error_line(second)
@@ -129,6 +139,21 @@ def test_good_run_then_failed_run_leaves_the_previous_complete_run(mini, theoph,
     assert main(["report", str(out / "mini.ipynb")]) == 0  # a re-written record: the manifest follows it
     manifest = dict(reversed(line.split("  ", 1)) for line in (out / "MANIFEST.sha256").read_text().splitlines())
     assert manifest == {k: v for k, v in _digests(out).items() if k != "MANIFEST.sha256"}
+
+
+def _kill_after_exports(mini, data, out):
+    """Start a run that pauses after its exports, and SIGKILL its process group once they are written."""
+    proc = subprocess.Popen([sys.executable, "-m", "pkwidgets.cli", "run", str(mini), str(out), "-p", "data_path",
+                             str(data), "-p", "pause_s", "30"], cwd=ROOT, env=ENV, start_new_session=True,
+                            stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+    try:
+        deadline = time.monotonic() + 120
+        while not list(out.parent.glob(f".{out.name}.staging-*/run_info.json")):
+            assert time.monotonic() < deadline and proc.poll() is None, "the run never wrote its exports"
+            time.sleep(0.2)
+    finally:
+        os.killpg(proc.pid, signal.SIGKILL)  # the session started above: the command and its kernel
+        proc.wait(timeout=60)
 
 
 @pytest.mark.parametrize("text, expected", [
