@@ -12,10 +12,13 @@ $(VENV)/.stamp-base:
 	$(PY) -m pip install -q --upgrade pip
 	touch $@
 
+# the notebooks extra includes the widgets extra (ipywidgets, bqplot) and installs the pkwidgets command
 $(VENV)/.stamp-demo: pyproject.toml $(VENV)/.stamp-base
 	$(PY) -m pip install -q -e ".[notebooks]"
+	$(PY) -m ipykernel install --sys-prefix --name python3 >/dev/null
 	touch $@
 
+# the test extra includes the widgets, notebooks, browser and dask extras
 $(VENV)/.stamp-test: pyproject.toml $(VENV)/.stamp-base
 	$(PY) -m pip install -q -e ".[test]"
 	$(PY) -m ipykernel install --sys-prefix --name python3 >/dev/null
@@ -29,7 +32,7 @@ browser-deps:
 
 demo: $(VENV)/.stamp-demo
 	$(PY) data/make_demo.py
-	$(PY) -m pkwidgets.demo
+	$(VENV)/bin/pkwidgets demo
 
 test: $(VENV)/.stamp-test browser-deps
 	$(PY) -m pytest

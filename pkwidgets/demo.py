@@ -1,9 +1,11 @@
-"""``python -m pkwidgets.demo``: the main job on the bundled synthetic study.
+"""``python -m pkwidgets.demo`` (or ``pkwidgets demo``): the main job on the bundled synthetic study.
 
 Runs ``analyses/single_dose.ipynb`` with papermill on ``data/demo_single_dose.csv``
 (written by ``data/make_demo.py``), writes the executed notebook, the CSV
 exports and the offline HTML record into ``results/single_dose/``, and prints
-their paths.  Results support qualified review; follow local regulations and SOPs.
+their paths.  The demo needs a source checkout (``analyses/`` and ``data/``
+are not installed with the package).  Results support qualified review;
+follow local regulations and SOPs.
 """
 
 from __future__ import annotations
@@ -11,29 +13,33 @@ from __future__ import annotations
 import os
 import sys
 
-from .report import run_analysis
-
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 
 
-def main(root=ROOT) -> dict:
-    """Run the single-dose analysis on the demo study; return the paths written."""
+def main(root=ROOT, output_dir=None) -> dict:
+    """Run the single-dose analysis on the demo study; return the paths written.
+
+    Raises
+    ------
+    RunError
+        If the checkout has no ``analyses/single_dose.ipynb`` or the demo data
+        have not been written yet (``python data/make_demo.py``), or the run fails.
+    """
+    from .report import run_analysis
+    from .report.errors import RunError
+
+    notebook = os.path.join(root, "analyses", "single_dose.ipynb")
     data = os.path.join(root, "data", "demo_single_dose.csv")
+    if not os.path.exists(notebook):
+        raise RunError(f"{notebook} not found: the demo runs from a source checkout of pkwidgets (analyses/, data/).")
     if not os.path.exists(data):
-        raise FileNotFoundError(f"{data} not found: write the demo studies first with python data/make_demo.py "
-                                "(make demo does both).")
-    out = os.path.join(root, "results", "single_dose")
-    return run_analysis(os.path.join(root, "analyses", "single_dose.ipynb"), out, {
-        "data_path": data,
-        "selection_record": os.path.join(out, "terminal_selection.json"),
-    })
+        raise RunError(f"{data} not found: write the demo studies first with python data/make_demo.py "
+                       "(make demo does both).")
+    out = output_dir or os.path.join(root, "results", "single_dose")
+    return run_analysis(notebook, out, {"data_path": data})
 
 
 if __name__ == "__main__":
-    paths = main()
-    print("HTML record:       ", paths["html"])
-    print("executed notebook: ", paths["notebook"])
-    for p in paths["csv"]:
-        print("CSV:               ", p)
-    print("Results support qualified review; follow local regulations and SOPs.")
-    sys.exit(0)
+    from .cli import main as cli_main
+
+    sys.exit(cli_main(["demo", *sys.argv[1:]]))

@@ -1,0 +1,73 @@
+"""Study records: notebook set-up, figures, the offline HTML record, unattended runs.
+
+One concern per module:
+
+- :mod:`~pkwidgets.report.notebook`: the analysis notebooks' parameters into column roles and
+  :func:`pkwidgets.nca` options (:func:`analysis_setup`), the data check, display defaults;
+- :mod:`~pkwidgets.report.labels`: group labels for tables and legends;
+- :mod:`~pkwidgets.report.figures`: static matplotlib figures (embedded as PNG);
+- :mod:`~pkwidgets.report.provenance`: the run header (file SHA-256, software versions, git
+  commit, settings) and the CSV/JSON exports;
+- :mod:`~pkwidgets.report.html`: the HTML record from the Jinja2 template ``templates/record.html.j2``;
+- :mod:`~pkwidgets.report.arguments`: notebook parameters read as YAML and checked against the notebook;
+- :mod:`~pkwidgets.report.staging`: a run's output folder switched into place whole, with a manifest;
+- :mod:`~pkwidgets.report.execute`: papermill execution (:func:`run_analysis`).
+
+Importing this package imports neither matplotlib, nbconvert, papermill nor
+the widgets; each is imported by the function that needs it.
+
+Results support qualified review; follow local regulations and SOPs.
+"""
+
+from .arguments import check_parameters, describe_parameters, notebook_parameters, parse_parameters, read_value
+from .errors import ParameterError, RunError
+from .execute import refresh_stored_outputs, run_analysis
+from .figures import plot_all_profiles, plot_mean_profiles, plot_profile
+from .html import find_run_info, header_html, write_record
+from .labels import format_group_value, group_labels, label_groups
+from .notebook import (PARAMETER_HELP, ROLES, AnalysisSetup, analysis_setup, data_check, display_defaults,
+                       key_parameters)
+from .provenance import CAUTION, RUN_INFO, export_results, git_commit, run_info, sha256_file, software_versions
+from .staging import FAILED, MANIFEST, staged_folder, write_manifest
+
+#: The record header as HTML (former private name, kept for callers of the single-module report).
+_header_html = header_html
+
+__all__ = [
+    "CAUTION",
+    "FAILED",
+    "MANIFEST",
+    "PARAMETER_HELP",
+    "ROLES",
+    "RUN_INFO",
+    "AnalysisSetup",
+    "ParameterError",
+    "RunError",
+    "analysis_setup",
+    "check_parameters",
+    "data_check",
+    "describe_parameters",
+    "display_defaults",
+    "export_results",
+    "find_run_info",
+    "format_group_value",
+    "git_commit",
+    "group_labels",
+    "header_html",
+    "key_parameters",
+    "label_groups",
+    "notebook_parameters",
+    "parse_parameters",
+    "plot_all_profiles",
+    "plot_mean_profiles",
+    "plot_profile",
+    "read_value",
+    "refresh_stored_outputs",
+    "run_analysis",
+    "run_info",
+    "sha256_file",
+    "software_versions",
+    "staged_folder",
+    "write_manifest",
+    "write_record",
+]

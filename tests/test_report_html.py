@@ -1,0 +1,144 @@
+"""The HTML study record: built from the packaged Jinja2 template, code hidden, software pinned.
+
+Sources of the check values:
+- Library versions: each library's own ``__version__`` (numpy, scipy, pandas, pint) and Python's
+  ``platform.python_version()`` / ``platform.platform()``, read in the test.
+- Git commit: ``git rev-parse HEAD`` run by the test in the checkout (git itself).
+- File digests: ``hashlib.sha256`` (Python standard library).
+- HTML escaping: ``html.escape`` (Python standard library); structure read back with
+  ``html.parser.HTMLParser``.
+- Hidden code: nbconvert's documented ``exclude_input`` option (jupyter nbconvert ``--no-input``).
+"""
+
+from __future__ import annotations
+
+import hashlib
+import html
+import platform
+import shutil
+import subprocess
+from html.parser import HTMLParser
+from pathlib import Path
+
+import nbformat
+import numpy
+import pandas
+import pint
+import pytest
+import scipy
+
+from pkwidgets.report import CAUTION, git_commit, header_html, software_versions, write_record
+from pkwidgets.report.html import TEMPLATES
+
+ROOT = Path(__file__).resolve().parents[1]
+CODE_MARK = "secret_code_marker_7f3 = 41 + 1"
+
+
+class _Tags(HTMLParser):
+    def __init__(self):
+        super().__init__()
+        self.tags, self.ids = [], []
+
+    def handle_starttag(self, tag, attrs):
+        attrs = dict(attrs)
+        self.tags.append((tag, attrs))
+        if attrs.get("id"):
+            self.ids.append(attrs["id"])
+
+
+@pytest.fixture(scope="module")
+def record(tmp_path_factory):
+    """An executed notebook (markdown, a code cell and its outputs) and its record."""
+    folder = tmp_path_factory.mktemp("record")
+    data = folder / "study.csv"
+    data.write_text("subject,time,conc\n1,0,0\n1,1,5\n")
+    nb = nbformat.v4.new_notebook()
+    nb.metadata["kernelspec"] = {"name": "python3", "display_name": "Python 3", "language": "python"}
+    code = nbformat.v4.new_code_cell(CODE_MARK, execution_count=1)
+    code.outputs = [nbformat.v4.new_output("stream", name="stdout", text="visible printed output 42\n"),
+                    nbformat.v4.new_output("execute_result", data={"text/plain": "'visible result 43'"},
+                                           execution_count=1)]
+    nb.cells = [nbformat.v4.new_markdown_cell("# Single-dose section title"), code]
+    path = folder / "mini.ipynb"
+    nbformat.write(nb, path)
+    info = {"notebook": "mini", "data_file": str(data), "data_sha256": hashlib.sha256(data.read_bytes()).hexdigest(),
+            "pkwidgets_version": software_versions()["pkwidgets"], "software": software_versions(),
+            "date": "2026-01-02T03:04:05+00:00", "parameters": {"conc_unit": "<script>alert(1)</script>"},
+            "settings": {"route": "extravascular"}, "caution": CAUTION}
+    out = write_record(path, info=info)
+    return Path(out).read_text(encoding="utf-8"), info, data
+
+
+def test_record_hides_code_and_keeps_outputs(record):
+    text, _, _ = record
+    assert CODE_MARK not in text and html.escape(CODE_MARK) not in text  # nbconvert exclude_input
+    assert "visible printed output 42" in text and "visible result 43" in text
+    assert "Single-dose section title" in text
+
+
+def test_record_opens_with_the_header_pinning_the_software(record):
+    text, info, data = record
+    parser = _Tags()
+    parser.feed(text)
+    assert parser.ids.index("pkw-record-header") < parser.ids.index("pkw-software")
+    assert text.index('id="pkw-record-header"') < text.index("Single-dose section title")  # the first block
+    header = text[text.index('id="pkw-record-header"'):text.index("</section>")]
+    for name, version in [("numpy", numpy.__version__), ("scipy", scipy.__version__),
+                          ("pandas", pandas.__version__), ("pint", pint.__version__),
+                          ("Python", platform.python_version()), ("platform", platform.platform())]:
+        assert f"<tr><td>{name}</td><td>{html.escape(version)}</td></tr>" in header
+    assert hashlib.sha256(data.read_bytes()).hexdigest() in header and CAUTION in header
+    assert "&lt;script&gt;alert(1)&lt;/script&gt;" in header and "<script>alert(1)" not in text  # html.escape
+
+
+def test_record_loads_nothing_from_a_network(record):
+    parser = _Tags()
+    parser.feed(record[0])
+    for tag, attrs in parser.tags:
+        if tag in ("script", "link", "img", "iframe"):
+            for key in ("src", "href"):
+                assert not (attrs.get(key) or "").startswith(("http:", "https:", "//")), (tag, attrs)
+
+
+def test_templates_are_package_files():
+    assert (Path(TEMPLATES) / "record.html.j2").is_file() and (Path(TEMPLATES) / "pkw_header.html.j2").is_file()
+    assert Path(TEMPLATES).parent == ROOT / "pkwidgets" / "report"
+
+
+def test_git_commit_of_the_checkout():
+    if shutil.which("git") is None or not (ROOT / ".git").exists():
+        pytest.skip("not a git checkout")
+    head = subprocess.run(["git", "rev-parse", "HEAD"], cwd=ROOT, capture_output=True, text=True).stdout.strip()
+    assert software_versions()["git_commit"] == head
+    header = header_html({"software": software_versions()})
+    assert head in header
+
+
+def test_no_git_commit_outside_a_checkout(tmp_path):
+    shutil.copytree(ROOT / "pkwidgets", tmp_path / "pkwidgets", ignore=shutil.ignore_patterns("__pycache__"))
+    assert git_commit(tmp_path) is None  # a copy outside any repository
+    assert git_commit(ROOT / "pkwidgets") is None  # inside a checkout but not its top: not "the package's" commit
+    header = header_html({"software": {**software_versions(), "git_commit": None}})
+    assert "none (not run from a git checkout)" in header
+
+
+def test_old_run_info_without_software_says_not_recorded():
+    header = header_html({"notebook": "single_dose", "pkwidgets_version": "0.1.0"})
+    assert "<tr><td>pkwidgets</td><td>0.1.0</td></tr>" in header and "not recorded" in header
+
+
+def test_run_info_pins_data_and_selection_files_and_software(tmp_path):
+    from types import SimpleNamespace
+
+    from pkwidgets.report import run_info
+
+    data, record = tmp_path / "study.csv", tmp_path / "terminal_selection.json"
+    data.write_text("subject,time,conc\n1,0,0\n1,1,5\n")
+    record.write_text('{"schema": 1, "entries": []}\n')
+    table = SimpleNamespace(settings={"route": "extravascular", "selections": {"path": str(record), "applied": []}})
+    info = run_info(data, table, notebook="x", parameters={})
+    assert info["data_sha256"] == hashlib.sha256(data.read_bytes()).hexdigest()  # hashlib
+    assert info["selection_sha256"] == hashlib.sha256(record.read_bytes()).hexdigest()
+    assert info["software"]["numpy"] == numpy.__version__ and info["software"]["python"] == platform.python_version()
+    none = run_info(data, SimpleNamespace(settings={"selections": None}), notebook="x", parameters={})
+    assert none["selection_file"] is None and none["selection_sha256"] is None
