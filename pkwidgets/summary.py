@@ -81,8 +81,9 @@ def summarize(table, *, by=None, parameters=None, units=None) -> pd.DataFrame:
 
     Parameters
     ----------
-    table : DataFrame
-        One row per profile (e.g. an :class:`pkwidgets.NCATable`).
+    table : DataFrame or NCAResult
+        One row per profile (e.g. ``NCAResult.parameters``, or the result
+        itself); a ``profile_id`` column is never summarised.
     by : str or list of str, optional
         Grouping columns (dose level, treatment, day...).  None or ``[]``
         summarises all profiles together.
@@ -124,6 +125,10 @@ def summarize(table, *, by=None, parameters=None, units=None) -> pd.DataFrame:
     ...
     KeyError: "summarize: grouping column(s) ['arm'] not in the table; columns are ['dose', 'CMAX']. Pass by= some of these, or None for one summary over all profiles."
     """
+    if isinstance(getattr(table, "parameters", None), pd.DataFrame):  # an NCAResult: its parameters and units
+        units = table.units if units is None else units
+        table = table.parameters
+    table = table.drop(columns=[c for c in ("profile_id",) if c in table.columns])
     by = [] if by is None else ([by] if isinstance(by, str) else list(by))
     missing = [c for c in by if c not in table.columns]
     if missing:
@@ -139,7 +144,7 @@ def summarize(table, *, by=None, parameters=None, units=None) -> pd.DataFrame:
                            f"{[c for c in table.columns if pd.api.types.is_numeric_dtype(table[c])]}.")
     units = getattr(table, "units", None) if units is None else units
     units = units if isinstance(units, dict) else {}
-    frame = pd.DataFrame(table)
+    frame = table
     groups = frame.groupby(by, sort=True, dropna=False) if by else [((), frame)]
     out = []
     for key, g in groups:
@@ -231,7 +236,7 @@ def blq_positions(rows, *, by, time, conc, blq=None) -> pd.DataFrame:
     Parameters
     ----------
     rows : DataFrame
-        Input rows (e.g. ``NCATable.rows``), concentration as read.
+        Input rows (e.g. ``NCAResult.samples``), concentration as read.
     by : list of str
         Profile keys.
     time, conc : str

@@ -36,7 +36,7 @@ def plot_all_profiles(rows, *, time, conc, by, conc_unit="", time_unit="", color
     Parameters
     ----------
     rows : DataFrame
-        Input rows (e.g. ``NCATable.rows``); non-numeric concentrations
+        Input rows (e.g. ``NCAResult.samples``); non-numeric concentrations
         (BLQ text, empty) are not drawn.
     time, conc : str
         Column names.
@@ -81,7 +81,7 @@ def plot_all_profiles(rows, *, time, conc, by, conc_unit="", time_unit="", color
     return fig
 
 
-def plot_profile(table, index, *, time, conc, conc_unit="", time_unit=""):
+def plot_profile(result, key, *, time=None, conc=None, conc_unit="", time_unit=""):
     """One profile, linear and semi-log, with the lambda-z fit marked.
 
     Used samples are filled circles, unused ones open; samples in the
@@ -92,11 +92,14 @@ def plot_profile(table, index, *, time, conc, conc_unit="", time_unit=""):
 
     Parameters
     ----------
-    table : NCATable
-    index : int
-        Row position of the profile in ``table``.
-    time, conc : str
-        Column names in ``table.rows``.
+    result : NCAResult
+    key : profile key
+        A ``by`` value (tuple for several columns), a dict, or a row of
+        ``result.parameters`` (filtered or sorted copies work: the profile is
+        found by its key, never by position).
+    time, conc : str, optional
+        Unused (kept for old calls): times are the times after the dose the
+        analysis used, concentrations the input column of ``result.settings``.
 
     Returns
     -------
@@ -104,14 +107,14 @@ def plot_profile(table, index, *, time, conc, conc_unit="", time_unit=""):
     """
     import matplotlib.pyplot as plt
 
-    r = table.rows
-    sub = r[r["profile"] == index]
-    t = _numeric(sub[time]).to_numpy()
-    c = _numeric(sub[conc]).to_numpy()
-    used = sub["used"].to_numpy()
-    lz = sub["lambda_z"].to_numpy()
-    row = table.iloc[index]
-    key = ", ".join(f"{k} {row[k]}" for k in table.record.by)
+    prof = result.profile(key)
+    sub = prof.samples
+    t = sub["nca_time"].to_numpy(dtype=np.float64)
+    c = _numeric(sub[result.settings["columns"]["conc"]]).to_numpy()
+    used = sub["nca_used"].to_numpy()
+    lz = sub["nca_lambda_z"].to_numpy()
+    row = prof.parameters
+    key = prof.label
     fig, axes = plt.subplots(1, 2, figsize=(10, 3.4), gridspec_kw=_GRID)
     order = np.argsort(t)
     for ax, log in zip(axes, (False, True)):

@@ -127,7 +127,9 @@ def analysis_setup(*, data_path, output_dir, columns, time_unit, conc_unit, dose
     group_by : str, list of str or None
         Summary groups; None or ``[]`` for one group of all profiles.
     selection_record : str or None
-        Terminal-phase record; None means ``terminal_selection.json`` in ``output_dir``.
+        Terminal-phase record; None means ``terminal_selection.json`` in
+        ``output_dir`` (a new record when it does not exist yet).  A record
+        named here must exist (a mistyped path is an error).
     nca_extra : dict, optional
         Further :func:`pkwidgets.nca` options of the notebook (``tau``, ``occasion``...).
     **own
@@ -161,9 +163,11 @@ def analysis_setup(*, data_path, output_dir, columns, time_unit, conc_unit, dose
     roles = _check_roles(columns, data_path)
     by = [roles["subject"]] + [roles[r] for r in _KEY_ROLES if r in roles]
     group_by = [group_by] if isinstance(group_by, str) else list(group_by or [])
+    default_record = not selection_record  # the output folder's own record may not exist yet; a named one must
     selection_record = selection_record or os.path.join(output_dir, "terminal_selection.json")
     options = _nca_options(roles, by, dose=dose, units={"time": time_unit, "conc": conc_unit, "dose": dose_unit},
-                           route=route, auc_method=auc_method, blq_rules=blq_rules, selections=selection_record)
+                           route=route, auc_method=auc_method, blq_rules=blq_rules, selections=selection_record,
+                           selections_new=default_record)
     options.update(nca_extra or {})
     parameters = dict(data_path=data_path, output_dir=output_dir, columns=columns, time_unit=time_unit,
                       conc_unit=conc_unit, dose_unit=dose_unit, route=route, dose=dose, auc_method=auc_method,
@@ -201,9 +205,9 @@ def data_check(table):
     """
     from ..summary import blq_positions
 
-    rows, cols, by = table.rows, table.settings["columns"], list(table.settings["by"])
+    rows, cols, by = table.samples, table.settings["columns"], list(table.settings["by"])
     counts = pd.DataFrame(
-        {"value": [len(rows), len(table), int(rows["used"].sum()), len(table.unused), ", ".join(by)]},
+        {"value": [len(rows), len(table.parameters), int(rows["nca_used"].sum()), len(table.unused), ", ".join(by)]},
         index=["rows in file", "profiles", "samples used", "rows not used", "profile keys"])
     return counts, blq_positions(rows, by=by, time=cols["time"], conc=cols["conc"], blq=cols.get("blq"))
 
