@@ -16,17 +16,24 @@ from __future__ import annotations
 
 import numpy as np
 
-__all__ = ["AUC_METHODS", "segment_areas", "segment_is_log", "area_to"]
+from .options import AUC_METHODS, check_choice
 
-#: Accepted ``auc_method`` values.
-AUC_METHODS = ("linear", "lin-up/log-down", "lin-log")
+__all__ = ["AUC_METHODS", "check_method", "segment_areas", "segment_is_log", "area_to"]
 
 
 def check_method(method: str) -> str:
-    if method not in AUC_METHODS:
-        allowed = ", ".join(repr(m) for m in AUC_METHODS)
-        raise ValueError(f"auc_method must be one of {allowed}; got {method!r}.")
-    return method
+    """Return ``method`` if it is one of :data:`AUC_METHODS` (the option check of :mod:`pkwidgets.options`).
+
+    Examples
+    --------
+    >>> check_method("lin-log")
+    'lin-log'
+    >>> check_method("log")
+    Traceback (most recent call last):
+    ...
+    ValueError: The 'auc_method' option must be one of 'linear', 'lin-up/log-down', 'lin-log'; got 'log'.
+    """
+    return check_choice("The 'auc_method' option", method, AUC_METHODS)
 
 
 def segment_is_log(t1, c1, c2, method, t_switch):
