@@ -31,7 +31,7 @@ def check_method(method: str) -> str:
     >>> check_method("log")
     Traceback (most recent call last):
     ...
-    ValueError: The 'auc_method' option must be one of 'linear', 'lin-up/log-down', 'lin-log'; got 'log'.
+    ValueError: The 'auc_method' option must be one of 'linear', 'lin-up/log-down', 'lin-log'; got 'log'. Did you mean 'lin-log'?
     """
     return check_choice("The 'auc_method' option", method, AUC_METHODS)
 

@@ -42,6 +42,7 @@ import numpy as np
 from ._anchor import anchor_at_dose_time
 from ._classify import ChunkSamples, SampleValueError, classify_samples
 from ._derived import derive_parameters
+from ._docs import fill_doc
 from ._exposure import measure_exposure
 from ._flags import reported_values, review_flags, sample_status
 from ._inputs import ProfileArrays, prepare_inputs
@@ -99,25 +100,11 @@ class ChunkResult(NamedTuple):
     lambda_z_used: np.ndarray  # (profiles, samples) bool
 
 
-def nca_arrays(
-    time,
-    conc,
-    *,
-    options=None,
-    dose=None,
-    route="extravascular",
-    duration=None,
-    tau=None,
-    auc_method="linear",
-    terminal="auto",
-    exclude=None,
-    blq=None,
-    lloq=None,
-    partial=(),
-    blq_rules=None,
-    qc=None,
-):
-    r"""Non-compartmental parameters of many profiles at once.
+@fill_doc
+def nca_arrays(time, conc, *, options=None, dose=None, route="extravascular", duration=None, tau=None,
+               auc_method="linear", terminal="auto", exclude=None, blq=None, lloq=None, partial=(),
+               blq_rules=None, qc=None):
+    r"""Non-compartmental parameters of many profiles at once (stages: see the module docstring).
 
     Parameters
     ----------
@@ -127,45 +114,16 @@ def nca_arrays(
         pre-dose samples: they are reported, not used.
     conc : array_like, same shape
         Concentrations, >= 0; NaN where missing.
-    options : NCAOptions, optional
-        The rules of the analysis (:class:`pkwidgets.options.NCAOptions`);
-        keyword arguments below that differ from their defaults replace its
-        fields (:func:`pkwidgets.options.build_options`).
-    dose : float or array_like (profiles,), optional
-        Dose amount; needed for clearance, volume and dose-normalised values.
-    route : {"extravascular", "iv-bolus", "iv-infusion"}
-    duration : float or array_like, optional
-        Infusion duration (required for ``"iv-infusion"``).  A number goes into
-        the options; an array gives one value per profile.
-    tau : float or array_like, optional
-        Dosing interval: adds AUCTAU, CMIN, CTROUGH, CAVG, FLUCP, SWING,
-        CLFTAU/CLTAU and AILAMZ.
-    auc_method : {"linear", "lin-up/log-down", "lin-log"}
-    terminal : "auto", (start, end) or array_like (profiles, 2)
-        Lambda-z window; rows of NaN mean automatic.
     exclude : array_like of bool, same shape as ``time``, optional
         Samples left out of the lambda-z fit (they still enter the AUC).
-    blq : array_like of bool, same shape, optional
-        True where the sample is below the LLOQ; its conc value is ignored.
-    lloq : float or array_like, optional
-        Lower limit of quantitation; needed by the ``"half-lloq"`` and
-        ``"lloq"`` BLQ rules.
-    partial : sequence of (start, end) or dict of name -> (start, end)
-        Partial AUC intervals after the dose (see :func:`pkwidgets.partial_auc`);
-        unnamed ones are called ``AUCINT_<start>-<end>``, names given must
-        start with ``AUCINT``.
-    blq_rules : BLQRules or dict, optional
-    qc : QCThresholds, optional
+    %(options)s
 
     Returns
     -------
     ArrayResult
-        ``dict`` of PPTESTCD code -> 1-D float array over profiles (NaN where
-        a value cannot be computed, or where it would be infinite: flag
-        ``nonfinite_result``), in the order of
-        :func:`pkwidgets.parameters.output_codes`, with ``flags``, ``status``,
-        ``lambda_z_used``, ``partial_bounds``, ``settings`` and ``options``
-        attributes.
+        PPTESTCD code -> 1-D float array over profiles, in the order of
+        :func:`pkwidgets.parameters.output_codes`; NaN where a value cannot be
+        computed, or would be infinite (flag ``nonfinite_result``).
 
     Raises
     ------
@@ -174,21 +132,10 @@ def nca_arrays(
         times within a profile, missing LLOQ where a BLQ rule needs it, or an
         unknown option.
 
-    Notes
-    -----
-    Each chunk of profiles goes through the stages, samples-major: classify
-    the samples (:mod:`pkwidgets._classify`), anchor at dose time
-    (:mod:`pkwidgets._anchor`), sort (:mod:`pkwidgets._sorting`), exposure
-    (:mod:`pkwidgets._exposure`), terminal phase (:mod:`pkwidgets._terminal`),
-    regimen (:mod:`pkwidgets._regimen`), derived parameters
-    (:mod:`pkwidgets._derived`) and flags (:mod:`pkwidgets._flags`).
-
     Examples
     --------
-    >>> import numpy as np
     >>> t = np.array([0.5, 1, 2, 4, 8, 12, 24])
-    >>> c = 100 * np.exp(-0.1 * t)
-    >>> r = nca_arrays(t, c, dose=1000, route="iv-bolus", auc_method="lin-up/log-down")
+    >>> r = nca_arrays(t, 100 * np.exp(-0.1 * t), dose=1000, route="iv-bolus", auc_method="lin-up/log-down")
     >>> round(float(r["AUCIFO"][0]), 6)   # Dose / CL = 1000 / 1
     1000.0
     >>> nca_arrays([0, 1, 1], [0, 2, 3])
@@ -208,19 +155,17 @@ def nca_arrays(
         except SampleValueError as exc:  # chunk-relative profile index -> index in the input
             raise exc.shifted(s) from None
 
-    piece = _run_chunks(run, arrays.time.shape[0])
+    return _result(_run_chunks(run, arrays.time.shape[0]), arrays, opts)
+
+
+def _result(piece: ChunkResult, arrays: ProfileArrays, opts: NCAOptions) -> ArrayResult:
     out = ArrayResult(piece.parameters)
     out.flags = piece.flags
     out.status = piece.status
     out.lambda_z_used = piece.lambda_z_used
     out.partial_bounds = {name: (a, b) for name, a, b in arrays.partial}
-    out.settings = {
-        "route": opts.route,
-        "auc_method": opts.auc_method,
-        "blq_rules": opts.blq_rules.as_dict(),
-        "qc": opts.qc.as_dict(),
-        "partial": [name for name, _, _ in arrays.partial],
-    }
+    out.settings = {"route": opts.route, "auc_method": opts.auc_method, "blq_rules": opts.blq_rules.as_dict(),
+                    "qc": opts.qc.as_dict(), "partial": [name for name, _, _ in arrays.partial]}
     out.options = opts
     return out
 
