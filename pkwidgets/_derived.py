@@ -4,7 +4,8 @@ Derived parameters (AUCIFO, CL, V, MRT, dose-normalised values, ...) are
 declared with their ``derive`` formula next to their entry in
 :data:`pkwidgets.parameters.PARAMETERS`; this stage evaluates the formulas of
 the codes a run returns in dependency order
-(:func:`pkwidgets.parameters.derivation_order`), vectorised over profiles.
+(:func:`pkwidgets.parameters.derivation_order`, decided once per call of
+:func:`pkwidgets.nca_arrays`), vectorised over profiles.
 Division by zero and overflow give inf or NaN here; the flags stage turns
 inf into NaN with the flag ``nonfinite_result``.
 """
@@ -13,15 +14,13 @@ from __future__ import annotations
 
 import numpy as np
 
-from .parameters import PARAMETERS, derivation_order
+from .parameters import PARAMETERS
 
 __all__ = ["derive_parameters"]
 
-_ORDER = derivation_order()
 
-
-def derive_parameters(measured: dict, inputs: dict, codes) -> dict:
-    """Measured values plus the derived ones among ``codes``.
+def derive_parameters(measured: dict, inputs: dict, derived) -> dict:
+    """Measured values plus the ``derived`` codes, each from its catalogue formula.
 
     Parameters
     ----------
@@ -29,8 +28,9 @@ def derive_parameters(measured: dict, inputs: dict, codes) -> dict:
         Values by code from the earlier stages (CMAX, AUCLST, LAMZ, ...).
     inputs : dict of str to ndarray
         Per-profile inputs named in :data:`pkwidgets.parameters.DERIVE_INPUTS`.
-    codes : collection of str
-        Codes the run returns; the formulas of the others are not evaluated.
+    derived : sequence of str
+        Codes to derive, each after those it is computed from (a sub-list of
+        :func:`pkwidgets.parameters.derivation_order`).
 
     Returns
     -------
@@ -46,10 +46,8 @@ def derive_parameters(measured: dict, inputs: dict, codes) -> dict:
     12.0
     """
     values = dict(measured)
-    wanted = set(codes)
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-        for code in _ORDER:
-            if code in wanted:
-                entry = PARAMETERS[code]
-                values[code] = entry.derive(*[values[n] if n in PARAMETERS else inputs[n] for n in entry.inputs])
+        for code in derived:
+            entry = PARAMETERS[code]
+            values[code] = entry.derive(*[values[n] if n in PARAMETERS else inputs[n] for n in entry.inputs])
     return values

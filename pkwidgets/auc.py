@@ -111,8 +111,9 @@ def segment_areas(t1, t2, c1, c2, is_log):
     1.442695
     """
     dt = t2 - t1
-    lin_auc = 0.5 * dt * (c1 + c2)
-    lin_aumc = 0.5 * dt * (t1 * c1 + t2 * c2)
+    with np.errstate(over="ignore"):  # +-inf from huge values: the engine reports NaN, flag nonfinite_result
+        lin_auc = 0.5 * dt * (c1 + c2)
+        lin_aumc = 0.5 * dt * (t1 * c1 + t2 * c2)
     if isinstance(lin_auc, np.ndarray) and np.shape(is_log) == lin_auc.shape and not is_log.any():
         return lin_auc, lin_aumc  # no log segment (e.g. auc_method="linear"): skip the log rule
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):

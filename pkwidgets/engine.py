@@ -50,7 +50,7 @@ from ._regimen import regimen_values
 from ._sorting import sort_samples
 from ._terminal import fit_terminal_phase
 from .options import ROUTES, NCAOptions, build_options
-from .parameters import output_codes
+from .parameters import derivation_order, output_codes
 
 __all__ = ["nca_arrays", "ArrayResult", "ROUTES", "SampleValueError"]
 
@@ -89,6 +89,22 @@ class ArrayResult(dict):
     lambda_z_used: np.ndarray
     settings: dict
     options: NCAOptions
+
+
+class _Plan(NamedTuple):
+    """What every chunk of one call computes."""
+
+    options: NCAOptions
+    steady: bool          # any profile has a dosing interval: every chunk returns the steady-state codes
+    codes: list           # returned codes, in order (pkwidgets.parameters.output_codes)
+    derived: list         # the derived ones among them, in dependency order
+
+
+def _plan(options: NCAOptions, arrays: ProfileArrays) -> _Plan:
+    steady = bool(np.any(~np.isnan(arrays.tau)))
+    codes = output_codes(options, partial_names=[name for name, _, _ in arrays.partial], has_tau=steady)
+    wanted = set(codes)
+    return _Plan(options, steady, codes, [c for c in derivation_order() if c in wanted])
 
 
 class ChunkResult(NamedTuple):
@@ -147,11 +163,11 @@ def nca_arrays(time, conc, *, options=None, dose=None, route="extravascular", du
                          tau=_scalar(tau), terminal=terminal, partial=partial, blq_rules=blq_rules, qc=qc)
     arrays = prepare_inputs(time, conc, opts, dose=dose, duration=_per_profile(duration), tau=_per_profile(tau),
                             exclude=exclude, blq=blq, lloq=lloq)
-    steady = bool(np.any(~np.isnan(arrays.tau)))  # every chunk then returns the steady-state codes
+    plan = _plan(opts, arrays)
 
     def run(s):
         try:
-            return _chunk(arrays.rows(slice(s, s + CHUNK)), opts, steady)
+            return _chunk(arrays.rows(slice(s, s + CHUNK)), plan)
         except SampleValueError as exc:  # chunk-relative profile index -> index in the input
             raise exc.shifted(s) from None
 
@@ -186,7 +202,7 @@ def _per_profile(value):
     return value if value is not None and np.ndim(value) != 0 else None
 
 
-def _chunk(arrays: ProfileArrays, options: NCAOptions, steady: bool) -> ChunkResult:
+def _chunk(arrays: ProfileArrays, plan: _Plan) -> ChunkResult:
     """All stages for one chunk of profiles, samples-major inside.
 
     Samples-major (samples x profiles): a per-profile value broadcasts along
@@ -195,19 +211,19 @@ def _chunk(arrays: ProfileArrays, options: NCAOptions, steady: bool) -> ChunkRes
     row by row.  Inputs and the per-sample outputs are transposed once, on the
     way in and out.
     """
-    route, tau = options.route, arrays.tau
+    options, tau = plan.options, arrays.tau
+    route = options.route
     samples = ChunkSamples.from_profiles(arrays)
     classified = classify_samples(samples, options.blq_rules)
     anchor = anchor_at_dose_time(samples, classified, tau, route, options.blq_rules)
     ordered = sort_samples(samples, classified, anchor)
     exposure = measure_exposure(ordered, classified.measured, tau, route, options.auc_method)
     terminal = fit_terminal_phase(ordered, exposure, arrays.window_start, arrays.window_end, route)
-    regimen = regimen_values(ordered, exposure, terminal, anchor, arrays, route, steady)
-    codes = output_codes(options, partial_names=[name for name, _, _ in arrays.partial], has_tau=steady)
-    values = derive_parameters({**_measured(exposure, terminal), **regimen.values}, regimen.inputs, codes)
+    regimen = regimen_values(ordered, exposure, terminal, anchor, arrays, route, plan.steady)
+    values = derive_parameters({**_measured(exposure, terminal), **regimen.values}, regimen.inputs, plan.derived)
     stage_flags = {**anchor.flags, "times_sorted": ordered.times_sorted, **regimen.flags}
     flags = review_flags(values, stage_flags, exposure, terminal, anchor, samples, options.qc, route, tau)
-    params, flags["nonfinite_result"] = reported_values(values, codes, exposure.measurable)
+    params, flags["nonfinite_result"] = reported_values(values, plan.codes, exposure.measurable)
     status, used = sample_status(classified, ordered, exposure, terminal)
     return ChunkResult(params, flags, status, used)
 

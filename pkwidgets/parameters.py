@@ -20,6 +20,7 @@ from __future__ import annotations
 
 import inspect
 from dataclasses import dataclass
+from functools import cached_property
 from typing import Callable, Optional
 
 import numpy as np
@@ -85,7 +86,7 @@ class Parameter:
     steady_state: bool = False
     layer: str = "engine"
 
-    @property
+    @cached_property
     def inputs(self) -> tuple:
         """Argument names of ``derive`` (codes and :data:`DERIVE_INPUTS`); empty when measured."""
         return () if self.derive is None else tuple(inspect.signature(self.derive).parameters)
