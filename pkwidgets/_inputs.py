@@ -158,6 +158,9 @@ def parse_terminal(terminal, P):
         return lo, hi
     if isinstance(terminal, str):
         raise ValueError(f"terminal must be 'auto', a (start, end) pair or an array of pairs; got {terminal!r}.")
+    if isinstance(terminal, dict):
+        raise ValueError("terminal as a dict of profile key -> (start, end) needs the profile keys of a table: "
+                         "use pkwidgets.nca, or give nca_arrays an array of shape (profiles, 2).")
     a = np.asarray(terminal, dtype=np.float64)
     if a.shape == (2,):
         a = np.broadcast_to(a, (P, 2))
