@@ -148,7 +148,7 @@ def run_worker(out):
 
 def compare(a, b):
     """Counts of compared arrays and a list of differences."""
-    n, diffs, nonfinite = 0, [], [0]
+    n, diffs, nonfinite = {}, [], [0]
     for case in sorted(set(a) | set(b)):
         if case not in a or case not in b:
             diffs.append(f"{case}: only in one version")
@@ -164,7 +164,7 @@ def compare(a, b):
                 u, v = x[part][k], y[part][k]
                 pairs = zip(u, v) if part == "partial_bounds" else [(u, v)]
                 for p, q in pairs:
-                    n += 1
+                    n[part] = n.get(part, 0) + 1
                     if part == "params" and p.dtype.kind == "f":
                         inf = np.isinf(p)  # the new version writes NaN (and a flag) where the old had +-inf
                         if inf.any():
@@ -177,13 +177,13 @@ def compare(a, b):
                     if not (p.dtype == q.dtype and np.array_equal(p, q, equal_nan=True)):
                         diffs.append(f"{case} {part}[{k}] differs")
         for part in ("status", "lambda_z_used"):
-            n += 1
+            n[part] = n.get(part, 0) + 1
             if not (x[part].dtype == y[part].dtype and np.array_equal(x[part], y[part])):
                 diffs.append(f"{case} {part} differs")
         if x["settings"] != y["settings"]:
             diffs.append(f"{case} settings differ: {x['settings']} vs {y['settings']}")
         if "_new" in y:
-            n += 1
+            n[NEW_FLAG] = n.get(NEW_FLAG, 0) + 1
             had_inf = np.zeros(y["_new"].shape, dtype=bool)
             for k, v in x["params"].items():
                 if v.dtype.kind == "f":
@@ -215,7 +215,8 @@ def main():
                 out[label] = pickle.load(fh)
             print(f"{label}: {out[label]['file']}")
     n, diffs, nonfinite = compare(out["base"]["results"], out["work"]["results"])
-    print(f"{len(out['base']['results'])} cases, {n} arrays compared, {len(diffs)} differences; "
+    detail = ", ".join(f"{k} {v}" for k, v in n.items())
+    print(f"{len(out['base']['results'])} cases, {sum(n.values())} arrays compared ({detail}), {len(diffs)} differences; "
           f"{nonfinite} old +-inf values are NaN with the {NEW_FLAG!r} flag")
     for d in diffs[:50]:
         print("  ", d)
