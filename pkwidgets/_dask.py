@@ -152,7 +152,8 @@ def _metas_from(sample: pd.DataFrame, spec) -> dict:
     o, by = spec.options, list(spec.by)
     partial = o.partial
     names = list(partial) if isinstance(partial, dict) else [partial_code(float(s), float(e)) for s, e in partial]
-    codes = list(output_codes(o, partial_names=names, has_dose=spec.columns.dose is not None or "dose" in spec.amounts))
+    codes = list(output_codes(o, partial_names=names, has_dose=spec.columns.dose is not None or "dose" in spec.amounts,
+                              has_tau=o.tau is not None or spec.columns.tau is not None))
     if o.occasion is not None:
         codes += ["ARAUC", "ARCMAX"]
     keys = sample[by].iloc[:0]

@@ -16,17 +16,24 @@ from __future__ import annotations
 
 import numpy as np
 
-__all__ = ["AUC_METHODS", "segment_areas", "segment_is_log", "area_to"]
+from .options import AUC_METHODS, check_choice
 
-#: Accepted ``auc_method`` values.
-AUC_METHODS = ("linear", "lin-up/log-down", "lin-log")
+__all__ = ["AUC_METHODS", "check_method", "segment_areas", "segment_is_log", "area_to"]
 
 
 def check_method(method: str) -> str:
-    if method not in AUC_METHODS:
-        allowed = ", ".join(repr(m) for m in AUC_METHODS)
-        raise ValueError(f"auc_method must be one of {allowed}; got {method!r}.")
-    return method
+    """Return ``method`` if it is one of :data:`AUC_METHODS` (the option check of :mod:`pkwidgets.options`).
+
+    Examples
+    --------
+    >>> check_method("lin-log")
+    'lin-log'
+    >>> check_method("log")
+    Traceback (most recent call last):
+    ...
+    ValueError: The 'auc_method' option must be one of 'linear', 'lin-up/log-down', 'lin-log'; got 'log'. Did you mean 'lin-log'?
+    """
+    return check_choice("The 'auc_method' option", method, AUC_METHODS)
 
 
 def segment_is_log(t1, c1, c2, method, t_switch):
@@ -104,8 +111,9 @@ def segment_areas(t1, t2, c1, c2, is_log):
     1.442695
     """
     dt = t2 - t1
-    lin_auc = 0.5 * dt * (c1 + c2)
-    lin_aumc = 0.5 * dt * (t1 * c1 + t2 * c2)
+    with np.errstate(over="ignore"):  # +-inf from huge values: the engine reports NaN, flag nonfinite_result
+        lin_auc = 0.5 * dt * (c1 + c2)
+        lin_aumc = 0.5 * dt * (t1 * c1 + t2 * c2)
     if isinstance(lin_auc, np.ndarray) and np.shape(is_log) == lin_auc.shape and not is_log.any():
         return lin_auc, lin_aumc  # no log segment (e.g. auc_method="linear"): skip the log rule
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):

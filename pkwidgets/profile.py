@@ -9,9 +9,10 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
+from ._docs import fill_doc
 from .engine import nca_arrays
 from .parameters import PARAMETERS
-from .qc import FLAGS, STATUS_REASONS, QCThresholds, flag_message
+from .qc import FLAGS, STATUS_REASONS, flag_message
 from .units import StudyUnits
 
 __all__ = ["nca_profile", "partial_auc", "ordered_codes", "exclusion_mask"]
@@ -46,24 +47,10 @@ def exclusion_mask(time, exclude, *, profile=None) -> np.ndarray:
     return mask
 
 
-def nca_profile(
-    time,
-    conc,
-    *,
-    dose=None,
-    route="extravascular",
-    duration=None,
-    tau=None,
-    auc_method="linear",
-    terminal="auto",
-    exclude=(),
-    blq=None,
-    lloq=None,
-    partial=(),
-    blq_rules=None,
-    qc=None,
-    units=None,
-):
+@fill_doc
+def nca_profile(time, conc, *, options=None, dose=None, route="extravascular", duration=None, tau=None,
+                auc_method="linear", terminal="auto", exclude=(), blq=None, lloq=None, partial=(),
+                blq_rules=None, qc=None, units=None):
     """Non-compartmental parameters of one concentration-time profile.
 
     Parameters
@@ -71,31 +58,13 @@ def nca_profile(
     time, conc : array_like, 1-D
         Sampling times after the dose and concentrations (NaN = missing).
         Unsorted times are sorted (flag ``times_sorted``).
-    dose : float, optional
-        Dose amount, for CL, V and dose-normalised values.
-    route : {"extravascular", "iv-bolus", "iv-infusion"}
-    duration : float, optional
-        Infusion duration (``route="iv-infusion"``).
-    tau : float, optional
-        Dosing interval, for steady-state parameters.
-    auc_method : {"linear", "lin-up/log-down", "lin-log"}
-    terminal : "auto" or (start, end)
-        Lambda-z window: automatic search, or all usable points in
-        ``[start, end]``.
     exclude : sequence of float
         Sampling times left out of the lambda-z fit.
-    blq : array_like of bool, optional
-        True where the sample is below the LLOQ (its conc value is ignored).
-    lloq : float or array_like, optional
-    partial : sequence of (start, end) or dict name -> (start, end)
-        Partial AUC intervals; columns named ``AUCINT_<start>-<end>``.
-    blq_rules : BLQRules or dict, optional
-        BLQ handling by position; defaults in :class:`pkwidgets.BLQRules`.
-    qc : QCThresholds, optional
     units : StudyUnits or dict, optional
         Declared units (``time``, ``conc``, ``dose``).  When given, values are
         expressed in the derived units (CL in L/h, ...) and ``attrs["units"]``
         names them.
+    %(options)s
 
     Returns
     -------
@@ -122,12 +91,16 @@ def nca_profile(
         raise ValueError("nca_profile takes 1-D time and conc; use nca_arrays for many profiles.")
     if time.shape != conc.shape:
         raise ValueError(f"time has {time.size} values but conc has {conc.size}; they must match.")
-    excl = exclusion_mask(time, exclude)
     res = nca_arrays(
-        time, conc, dose=dose, route=route, duration=duration, tau=tau, auc_method=auc_method,
-        terminal=terminal, exclude=excl, blq=blq, lloq=lloq, partial=partial,
+        time, conc, options=options, dose=dose, route=route, duration=duration, tau=tau, auc_method=auc_method,
+        terminal=terminal, exclude=exclusion_mask(time, exclude), blq=blq, lloq=lloq, partial=partial,
         blq_rules=blq_rules, qc=qc,
     )
+    return _profile_series(res, units)
+
+
+def _profile_series(res, units) -> pd.Series:
+    """The one profile of an :class:`~pkwidgets.engine.ArrayResult` as a Series, in units if declared."""
     codes = ordered_codes(res)
     values = {k: float(res[k][0]) for k in codes}
     unit_map = None
@@ -140,11 +113,10 @@ def nca_profile(
             unit_map[k] = text
     out = pd.Series(values, name="value", dtype=np.float64)
     out.index.name = "PPTESTCD"
-    qc = qc or QCThresholds()
     raised = [name for name in FLAGS if res.flags[name][0]]
     out.attrs = {
         "flags": raised,
-        "messages": [flag_message(n, qc) for n in raised],
+        "messages": [flag_message(n, res.options.qc) for n in raised],
         "units": unit_map,
         "sample_status": [STATUS_REASONS[int(s)] for s in res.status[0]],
         "lambda_z_used": res.lambda_z_used[0].tolist(),

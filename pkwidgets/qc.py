@@ -59,6 +59,8 @@ FLAGS: dict[str, tuple[str, str]] = {
     "predose_high": ("review", "pre-dose concentration above {max_predose_pct}% of CMAX (EMA 2010)"),
     "tau_extrapolated": ("review", "last measurable sample before dose time + tau: AUCTAU extrapolated with lambda z"),
     "partial_extrapolated": ("review", "a partial-AUC end lies after TLST: extrapolated with lambda z"),
+    "nonfinite_result": ("review", "a result was infinite (concentrations too large for floating point, or a "
+                                   "division by zero such as SWING with CMIN 0) and is reported as NaN"),
     "time0_added": ("info", "no sample at dose time: concentration 0 added at time 0"),
     "predose_shifted": ("info", "steady state: the pre-dose sample taken before dose time is used as the concentration at time 0"),
     "predose_imputed": ("info", "steady state without a pre-dose sample: CMIN of the interval used at time 0"),

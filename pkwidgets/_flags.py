@@ -1,0 +1,75 @@
+"""Stage 7 of the engine: reviewer flags, the reported values, and the status of every input sample.
+
+Flags are named in :data:`pkwidgets.qc.FLAGS`.  Reported values are NaN for
+a profile without a measured positive concentration, and NaN with the flag
+``nonfinite_result`` where a value overflowed to +-inf (an extreme
+concentration, or SWING with CMIN 0): an infinite number is never reported.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from ._anchor import DoseTimePoint
+from ._classify import ChunkSamples, ClassifiedSamples
+from ._exposure import Exposure
+from ._sorting import SortedSamples
+from ._terminal import TerminalPhase
+from .qc import FLAGS, QCThresholds, SampleStatus
+
+__all__ = ["review_flags", "reported_values", "sample_status"]
+
+
+def review_flags(values: dict, stage_flags: dict, exposure: Exposure, terminal: TerminalPhase,
+                 anchor: DoseTimePoint, samples: ChunkSamples, qc: QCThresholds, route: str, tau) -> dict:
+    """Every flag of :data:`~pkwidgets.qc.FLAGS`, in its order: the stages' and the QC thresholds'."""
+    has_pos, fit = exposure.measurable, terminal.fit
+    flags = {name: np.zeros(has_pos.shape, dtype=bool) for name in FLAGS}
+    flags.update(stage_flags)
+    nofit = has_pos & np.isnan(terminal.lamz)
+    with np.errstate(invalid="ignore"):
+        flags["no_measurable"] = ~has_pos
+        flags["no_lambda_z"] = nofit
+        flags["few_points"] = has_pos & ~nofit & (fit.npoints < qc.min_points)
+        flags["r2adj_low"] = (fit.r2adj < qc.min_r2adj)
+        flags["extrapolation_high"] = values["AUCPEO"] > qc.max_extrapolated_pct
+        flags["span_short"] = values["LAMZSPN"] < qc.min_span
+        predose = np.where((route == "iv-bolus") | ~np.isnan(tau), np.nan, anchor.trough)
+        flags["predose_high"] = predose > qc.max_predose_pct / 100.0 * values["CMAX"]
+    flags["manual_terminal"] = terminal.manual
+    flags["points_excluded"] = (samples.exclude & anchor.usable).any(axis=0)
+    return flags
+
+
+def reported_values(values: dict, codes, measurable):
+    """``{code: values}`` for ``codes`` in order, NaN without a measurable concentration or where +-inf.
+
+    Returns the values and the per-profile ``nonfinite_result`` flag.
+    """
+    out = {}
+    nonfinite = np.zeros(measurable.shape, dtype=bool)
+    for code in codes:
+        v = np.where(measurable, values[code], np.nan)
+        bad = np.isinf(v)
+        if bad.any():
+            nonfinite |= bad
+            v[bad] = np.nan
+        out[code] = v
+    return out, nonfinite
+
+
+def sample_status(classified: ClassifiedSamples, ordered: SortedSamples, exposure: Exposure,
+                  terminal: TerminalPhase):
+    """Status and lambda-z membership of each input sample, profiles x samples (input order)."""
+    status = classified.status
+    M, P = ordered.time.shape
+    with np.errstate(invalid="ignore"):
+        after_last = ordered.usable & (ordered.time > exposure.tlst) & ~ordered.added
+    back = np.empty(M * P, dtype=np.intp)  # flattened sorted position of each input sample
+    back[ordered.positions.reshape(-1)] = np.arange(M * P)
+    back = back.reshape(M, P)[1:]
+    used_in = np.ascontiguousarray(terminal.fit.used).reshape(-1).take(back)
+    late = after_last.reshape(-1).take(back)
+    status[late & (status == SampleStatus.USED)] = SampleStatus.AFTER_TLAST
+    status[~exposure.measurable & (status == SampleStatus.USED) & classified.present] = SampleStatus.NO_MEASURABLE
+    return np.ascontiguousarray(status.T), np.ascontiguousarray(used_in.T)
