@@ -87,14 +87,14 @@ def nca_dask(data, spec, run, *, selections=None) -> LazyResult:
     keys = [c for c in by if c != spec.options.occasion] or by
     metas = _metas(data, spec)
     parts = data.shuffle(on=keys).to_delayed()
-    results = [dask.delayed(_one_partition)(part, i, spec, run, selections) for i, part in enumerate(parts)]
+    results = [dask.delayed(_one_partition)(part, i, spec, run, selections, metas) for i, part in enumerate(parts)]
     frames = {name: dd.from_delayed([dask.delayed(getattr)(r, name) for r in results], meta=meta, verify_meta=False)
               for name, meta in metas.items()}
     return LazyResult(partitions=results, **frames)
 
 
-def _one_partition(df, number, spec, run, selections):
-    """The analysis of one partition, its profile ids made unique; empty tables for an empty partition."""
+def _one_partition(df, number, spec, run, selections, metas):
+    """The analysis of one partition, its profile ids made unique and its key columns of the declared types."""
     from .combine import renumber
 
     if len(df) == 0:
@@ -104,8 +104,11 @@ def _one_partition(df, number, spec, run, selections):
     if isinstance(options.terminal, dict):
         options = options.replace(terminal={k: v for k, v in options.terminal.items() if k in here})
     ex = spec.exclude_times and {k: v for k, v in spec.exclude_times.items() if k in here}
-    res = run(df.reset_index(drop=True), replace(spec, options=options, exclude_times=ex), selections=selections)
-    return renumber(res, number * ID_STRIDE)
+    res = renumber(run(df.reset_index(drop=True), replace(spec, options=options, exclude_times=ex),
+                       selections=selections), number * ID_STRIDE)
+    keys = list(spec.by)
+    return replace(res, **{name: getattr(res, name).astype({k: metas[name][k].dtype for k in keys})
+                           for name in ("parameters", "flags")})
 
 
 def _empty_result(df, spec):

@@ -49,8 +49,9 @@ def long_table(n_subjects=40, seed=66):
 
 
 def by_keys(frame):
-    """Sorted by the keys; key text as plain str (dask may hold it as its own string dtype)."""
-    f = pd.DataFrame(frame)
+    """Parameters sorted by the keys, without profile ids (they differ between partitions and memory);
+    key text as plain str (dask may hold it as its own string dtype)."""
+    f = getattr(frame, "parameters", frame).drop(columns="profile_id")
     f["subject"] = f["subject"].astype(object).astype(str)
     return f.sort_values(["subject", "period"]).reset_index(drop=True)
 
@@ -60,22 +61,39 @@ def test_dask_result_equals_in_memory(client):
     df = long_table()
     ddf = dd.from_pandas(df, npartitions=5)
     lazy = nca(ddf, by=["subject", "period"], auc_method="lin-up/log-down")
-    assert isinstance(lazy, dd.DataFrame)
-    got = by_keys(lazy.compute())
-    want = by_keys(nca(df, by=["subject", "period"], auc_method="lin-up/log-down"))
+    assert all(isinstance(f, dd.DataFrame) for f in (lazy.parameters, lazy.samples, lazy.flags))
+    memory = nca(df, by=["subject", "period"], auc_method="lin-up/log-down")
+    got, want = by_keys(lazy.parameters.compute()), by_keys(memory)
     assert list(got.columns) == list(want.columns)
     assert len(got) == 80
     pd.testing.assert_frame_equal(got, want, check_exact=False, rtol=1e-12, atol=0)
+    # the row account and the flags travel too, and agree with the in-memory run
+    rows = lazy.samples.compute()
+    assert len(rows) == len(df)
+    order = ["subject", "period", "time"]
+    a = rows.astype({"subject": str}).sort_values(order)[["nca_used", "nca_reason", "nca_lambda_z"]]
+    b = memory.samples.sort_values(order)[["nca_used", "nca_reason", "nca_lambda_z"]]
+    np.testing.assert_array_equal(a.to_numpy(), b.to_numpy())
+    flags = lazy.flags.compute()
+    # times_sorted says the INPUT rows were out of time order: the shuffle reorders them, so it is left out
+    flags, mem = flags[flags["flag"] != "times_sorted"], memory.flags[memory.flags["flag"] != "times_sorted"]
+    assert sorted(zip(flags["subject"].astype(str), flags["period"], flags["flag"])) == \
+        sorted(zip(mem["subject"], mem["period"], mem["flag"]))
+    # compute() combines the partitions into one result looked up by key
+    whole = lazy.compute()
+    np.testing.assert_array_equal(whole.profile(("S007", 2)).conc, memory.profile(("S007", 2)).conc)
 
 
 def test_meta_matches_computed_columns(client):
     # dask contract: the declared meta has the columns and dtypes of the computed partitions
     df = long_table(n_subjects=6)
     lazy = nca(dd.from_pandas(df, npartitions=3), by=["subject", "period"], tau=24.0, partial=[(0, 4)])
-    out = lazy.compute()
-    assert list(lazy.columns) == list(out.columns)
-    assert "AUCTAU" in out.columns and "AUCINT_0-4" in out.columns
-    assert dict(lazy.dtypes) == dict(out.dtypes)
+    for name in ("parameters", "samples", "flags"):
+        frame = getattr(lazy, name)
+        out = frame.compute()
+        assert list(frame.columns) == list(out.columns), name
+        assert dict(frame.dtypes) == dict(out.dtypes), name
+    assert {"AUCTAU", "AUCINT_0-4"} <= set(lazy.parameters.columns)
 
 
 def test_bolus_identity_through_dask(client):
@@ -90,7 +108,7 @@ def test_bolus_identity_through_dask(client):
         rows += [{"id": f"P{i:02d}", "time": x, "conc": 1000.0 / v * np.exp(-cl / v * x), "dose": 1000.0}
                  for x in t]
     ddf = dd.from_pandas(pd.DataFrame(rows).sample(frac=1.0, random_state=1), npartitions=4)
-    out = nca(ddf, by="id", route="iv-bolus", auc_method="lin-up/log-down").compute().set_index("id")
+    out = nca(ddf, by="id", route="iv-bolus", auc_method="lin-up/log-down").parameters.compute().set_index("id")
     np.testing.assert_allclose(out["AUCIFO"].sort_index(), pd.Series(expected).sort_index(), rtol=1e-9)
 
 
@@ -105,7 +123,7 @@ def test_terminal_dict_reaches_the_right_partition(client):
     # a per-profile window given on the dask path gives the same fit as in memory (reference: in-memory nca)
     df = long_table(n_subjects=8)
     term = {("S002", 1): (8, 48), ("S007", 2): (12, 48)}
-    got = by_keys(nca(dd.from_pandas(df, npartitions=3), by=["subject", "period"], terminal=term).compute())
+    got = by_keys(nca(dd.from_pandas(df, npartitions=3), by=["subject", "period"], terminal=term).parameters.compute())
     want = by_keys(nca(df, by=["subject", "period"], terminal=term))
     pd.testing.assert_frame_equal(got, want, check_exact=False, rtol=1e-12, atol=0)
     row = got[(got.subject == "S002") & (got.period == 1)].iloc[0]
@@ -120,6 +138,6 @@ def test_worker_processes_give_the_same_result():
     df = long_table(n_subjects=10)
     with distributed.LocalCluster(n_workers=1, threads_per_worker=2, processes=True, host="127.0.0.1",
                                   dashboard_address=None) as cluster, distributed.Client(cluster):
-        got = by_keys(nca(dd.from_pandas(df, npartitions=3), by=["subject", "period"]).compute())
+        got = by_keys(nca(dd.from_pandas(df, npartitions=3), by=["subject", "period"]).parameters.compute())
     want = by_keys(nca(df, by=["subject", "period"]))
     pd.testing.assert_frame_equal(got, want, check_exact=False, rtol=1e-12, atol=0)
