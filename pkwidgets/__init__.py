@@ -4,6 +4,9 @@ Results support qualified review; follow local regulations and SOPs.
 """
 
 from .blq import BLQRules
+from .design import (DESIGN_CODES, ScheduleEvaluation, VirtualStudy, evaluate_schedule, evaluate_schedule_dask,
+                     simulate_profiles)
+from .design_models import CompartmentModel
 from .engine import ArrayResult, nca_arrays
 from .errors import InputDataError, UnitError
 from .parameters import PARAMETERS, parameter_table, partial_code
@@ -18,15 +21,21 @@ __version__ = "0.1.0"
 __all__ = [
     "ArrayResult",
     "BLQRules",
+    "CompartmentModel",
+    "DESIGN_CODES",
     "FLAGS",
     "InputDataError",
     "NCARecord",
     "NCATable",
     "PARAMETERS",
     "QCThresholds",
+    "ScheduleEvaluation",
     "SelectionRecord",
     "StudyUnits",
     "UnitError",
+    "VirtualStudy",
+    "evaluate_schedule",
+    "evaluate_schedule_dask",
     "nca",
     "nca_arrays",
     "nca_profile",
@@ -34,4 +43,5 @@ __all__ = [
     "partial_auc",
     "partial_code",
     "profile_fingerprint",
+    "simulate_profiles",
 ]
