@@ -11,7 +11,7 @@ import pandas as pd
 
 from .qc import FLAGS
 
-__all__ = ["summarise", "plot_evaluation"]
+__all__ = ["summarise", "plot_evaluation", "plot_schedules", "design_info"]
 
 #: Okabe-Ito colour-blind-safe colours, each paired with a marker shape.
 _STYLE = [("#0072B2", "o"), ("#D55E00", "s"), ("#009E73", "^"), ("#CC79A7", "D"), ("#E69F00", "v"),
@@ -100,3 +100,59 @@ def plot_evaluation(result, codes=None):
                  "(marker: median = bias; bar: 5th-95th percentile)", fontsize=10)
     fig.subplots_adjust(left=0.16, right=0.98, bottom=0.08, top=0.86, wspace=0.15, hspace=0.6)
     return fig
+
+
+def plot_schedules(model, schedules, *, n=500, seed=0, time_unit="", conc_unit=""):
+    """The model's concentrations over time (median and 5th-95th percentile of ``n`` virtual subjects,
+    without residual error, semi-log) above the sampling times of each schedule.  Returns the Figure."""
+    import matplotlib.pyplot as plt
+
+    from .design_curves import concentration
+    from .design_models import draw_subjects
+
+    named = {str(k): np.asarray(v, dtype=float) for k, v in schedules.items()}
+    end = max(float(t[-1]) for t in named.values())
+    grid = np.linspace(0.0, end, 400)
+    conc = concentration(model, draw_subjects(model, n, np.random.default_rng(seed)), grid)
+    lo, med, hi = np.quantile(conc, [0.05, 0.5, 0.95], axis=0)
+    fig, (top, rug) = plt.subplots(2, 1, figsize=(8.0, 4.2 + 0.3 * len(named)), sharex=True,
+                                   gridspec_kw={"height_ratios": [3.0, 0.4 + 0.3 * len(named)]})
+    top.fill_between(grid, lo, hi, color="#56B4E9", alpha=0.35, lw=0, label="5th-95th percentile")
+    top.plot(grid, med, color="#0072B2", lw=2, label="median")
+    if model.lloq is not None:
+        top.axhline(model.lloq, color="#D55E00", ls="--", lw=1, label="LLOQ")
+    top.set_yscale("log")
+    floor = max(float(np.min(med[med > 0])) if np.any(med > 0) else 1e-3, 1e-4 * float(np.max(hi)))
+    top.set_ylim(floor if model.lloq is None else min(floor, model.lloq / 3), 2.0 * float(np.max(hi)))
+    top.set_ylabel(f"concentration ({conc_unit})" if conc_unit else "concentration")
+    top.set_title(f"Model curve of {n} virtual subjects (no residual error) and the candidate schedules", fontsize=10)
+    top.legend(fontsize=8, loc="upper right")
+    for i, (name, times) in enumerate(named.items()):
+        colour, marker = _STYLE[i % len(_STYLE)]
+        rug.plot(times, np.full(times.size, -i), marker=marker, color=colour, ls="none", ms=6)
+    rug.set_yticks(-np.arange(len(named)), list(named))
+    rug.set_ylim(-len(named) + 0.5, 0.5)
+    rug.set_xlabel(f"time after dose ({time_unit})" if time_unit else "time after dose")
+    fig.subplots_adjust(left=0.2, right=0.98, bottom=0.12, top=0.92, hspace=0.08)
+    return fig
+
+
+def design_info(result, *, notebook, parameters, now=None) -> dict:
+    """Record header of a design run, in the shape of :func:`pkwidgets.report.run_info` (no data file:
+    the profiles are simulated; the seed makes the run repeatable)."""
+    import datetime as _dt
+
+    from . import __version__
+    from .report import CAUTION, _plain
+
+    now = now or _dt.datetime.now(_dt.timezone.utc)
+    return _plain({
+        "notebook": notebook,
+        "data_file": "none: virtual subjects simulated from the model (synthetic)",
+        "data_sha256": "",
+        "pkwidgets_version": __version__,
+        "date": now.replace(microsecond=0).isoformat(),
+        "parameters": parameters,
+        "settings": {**result.settings, "schedules": result.schedules},
+        "caution": CAUTION,
+    })
