@@ -37,7 +37,6 @@ import pandas as pd
 from .design_curves import concentration, exact_values
 from .design_models import CompartmentModel, draw_subjects
 from .engine import nca_arrays
-from .qc import FLAGS
 
 __all__ = ["VirtualStudy", "simulate_profiles", "ScheduleEvaluation", "evaluate_schedule",
            "evaluate_schedule_dask", "DESIGN_CODES"]
