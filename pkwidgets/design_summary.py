@@ -143,7 +143,7 @@ def design_info(result, *, notebook, parameters, now=None) -> dict:
     import datetime as _dt
 
     from . import __version__
-    from .report import CAUTION, _plain
+    from .report import CAUTION
 
     now = now or _dt.datetime.now(_dt.timezone.utc)
     return _plain({
@@ -156,3 +156,16 @@ def design_info(result, *, notebook, parameters, now=None) -> dict:
         "settings": {**result.settings, "schedules": result.schedules},
         "caution": CAUTION,
     })
+
+
+def _plain(value):
+    """JSON-friendly copy: tuples to lists, NumPy scalars to Python, non-finite floats to None."""
+    if isinstance(value, dict):
+        return {str(k): _plain(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple, np.ndarray)):
+        return [_plain(v) for v in value]
+    if isinstance(value, np.generic):
+        value = value.item()
+    if isinstance(value, float) and not np.isfinite(value):
+        return None
+    return value
