@@ -16,9 +16,13 @@ It prints, in one run on the same machine state:
 3. a profile of the engine from outside (``cProfile``, engine run on one
    thread so that the profiler sees every chunk), grouped by stage;
 4. an experiment, only here in ``bench/`` and only if ``numba`` can be
-   imported (it is not a dependency of pkwidgets): compiled kernels of the
-   lambda-z search and of the segment areas, compared with the engine's NumPy
-   stages on the same inputs, for equality and speed.
+   imported (it is not a dependency of pkwidgets; kernels in
+   ``bench/_numba_kernels.py``): compiled kernels of the lambda-z search and
+   of the segment areas, compared with the engine's NumPy stages on the same
+   inputs (NumPy in the engine's chunks and threads), for equality and speed;
+   and a one-pass compiled kernel of this benchmark's case (CMAX, TMAX, TLST,
+   AUCLST, LAMZ, AUCIFO only) against the whole engine: a ceiling for what a
+   compiled engine could reach.
 
 Targets (issue 17): end to end <= 3 s and engine alone <= 1 s per 10^6
 subjects x 16 samples on 2 cores.  Timings depend on the machine and on what
