@@ -6,6 +6,8 @@ Results support qualified review; follow local regulations and SOPs.
 from .blq import BLQRules
 from .combine import concat_results
 from .compare import compare_treatments
+from .design import ScheduleEvaluation, evaluate_schedule, evaluate_schedule_dask, simulate_profiles
+from .design_models import CompartmentModel
 from .engine import ArrayResult, nca_arrays
 from .errors import InputDataError, UnitError
 from .options import ColumnMap, NCAOptions
@@ -29,6 +31,7 @@ __all__ = [
     "ArrayResult",
     "BLQRules",
     "ColumnMap",
+    "CompartmentModel",
     "FLAGS",
     "InputDataError",
     "NCAOptions",
@@ -38,6 +41,7 @@ __all__ = [
     "ProfileData",
     "QCThresholds",
     "SDTMRead",
+    "ScheduleEvaluation",
     "SelectionRecord",
     "SparseResult",
     "StudyUnits",
@@ -47,6 +51,8 @@ __all__ = [
     "compare_treatments",
     "concat_results",
     "dose_proportionality",
+    "evaluate_schedule",
+    "evaluate_schedule_dask",
     "nca",
     "nca_arrays",
     "nca_profile",
@@ -57,6 +63,7 @@ __all__ = [
     "partial_code",
     "profile_fingerprint",
     "read_sdtm",
+    "simulate_profiles",
     "to_pp",
     "write_pp",
     "write_workbook",
