@@ -39,7 +39,10 @@ PARTS = {
         start with ``AUCINT``.
     blq_rules : BLQRules or dict, optional
         BLQ handling by position; defaults in :class:`pkwidgets.BLQRules`.
-    qc : QCThresholds, optional""",
+    qc : QCThresholds, optional
+    lambda_z_rule : str, optional
+        Automatic terminal-phase rule (:data:`pkwidgets.options.LAMBDA_Z_RULES`);
+        default ``"tail-extension"``, this project's rule.""",
 }
 
 

@@ -16,6 +16,8 @@ from ._exposure import Exposure
 from ._sorting import SortedSamples
 from ._terminal import TerminalPhase
 from .qc import FLAGS, QCThresholds, SampleStatus
+from .terminal_flags import (back_extrapolation_high, fit_starts_at_first_sample, half_life_interval_wide,
+                             terminal_phase_ambiguous)
 
 __all__ = ["review_flags", "reported_values", "sample_status"]
 
@@ -36,9 +38,29 @@ def review_flags(values: dict, stage_flags: dict, exposure: Exposure, terminal: 
         flags["span_short"] = values["LAMZSPN"] < qc.min_span
         predose = np.where((route == "iv-bolus") | ~np.isnan(tau), np.nan, anchor.trough)
         flags["predose_high"] = predose > qc.max_predose_pct / 100.0 * values["CMAX"]
+    flags.update(_terminal_review(values, terminal, qc, route))
     flags["manual_terminal"] = terminal.manual
     flags["points_excluded"] = (samples.exclude & anchor.usable).any(axis=0)
     return flags
+
+
+def _terminal_review(values: dict, terminal: TerminalPhase, qc: QCThresholds, route: str) -> dict:
+    """Review conditions on the terminal phase (:mod:`pkwidgets.terminal_flags`)."""
+    lamzhl = values["LAMZHL"]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        other_hl = np.log(2.0) / terminal.lamz_other
+        lower, upper = values["LAMZHL_LOWER95"], values["LAMZHL_UPPER95"]
+    has_fit = ~np.isnan(lamzhl)
+    return {
+        "lambda_z_from_first_sample": ~terminal.manual & fit_starts_at_first_sample(
+            values["LAMZLL"], terminal.first_time, route != "extravascular"),
+        "back_extrapolation_high": back_extrapolation_high(values.get("AUCPBEO", np.nan * lamzhl),
+                                                           qc.max_back_extrapolated_pct),
+        "terminal_phase_ambiguous": ~terminal.manual & has_fit & terminal_phase_ambiguous(
+            lamzhl, other_hl, qc.max_rule_disagreement),
+        "half_life_interval_wide": has_fit & (terminal.fit.npoints >= 3) & half_life_interval_wide(
+            lower, np.where(np.isnan(upper), np.inf, upper), qc.max_half_life_ratio),
+    }
 
 
 def reported_values(values: dict, codes, measurable):

@@ -18,9 +18,14 @@ import numpy as np
 
 from ._exposure import Exposure
 from ._sorting import SortedSamples
-from .lambda_z import LambdaZFit, fit_lambda_z_samples_major
+from scipy import stats
 
-__all__ = ["TerminalPhase", "fit_terminal_phase"]
+from .lambda_z import LambdaZFit, fit_lambda_z
+
+__all__ = ["TerminalPhase", "fit_terminal_phase", "COMPARISON_RULE"]
+
+#: The rule each automatic rule is checked against for the "terminal phase ambiguous" flag.
+COMPARISON_RULE = {"adjusted-r2": "tail-extension"}
 
 
 @dataclass
@@ -30,11 +35,20 @@ class TerminalPhase:
     fit: LambdaZFit         # per-profile fit; ``used`` is sorted rows x profiles
     lamz: np.ndarray        # lambda z, NaN without a measurable concentration or a fit
     manual: np.ndarray      # bool: the window was given by hand
+    margin: np.ndarray      # half-width of the 95 % t interval of lambda z (NaN below 3 points)
+    lamz_other: np.ndarray  # lambda z of the comparison rule (automatic profiles; NaN for hand windows)
+    first_time: np.ndarray  # time of the first observed positive concentration
 
 
 def fit_terminal_phase(ordered: SortedSamples, exposure: Exposure, window_start, window_end,
-                       route) -> TerminalPhase:
-    """Candidate points per profile (automatic or by window) and the lambda-z fit over them."""
+                       route, rule="tail-extension") -> TerminalPhase:
+    r"""Candidate points per profile (automatic or by window), the lambda-z fit, its 95 % margin.
+
+    The margin is :math:`t_{0.975,\,n-2}\,SE(\lambda_z)` (the t interval of a
+    least-squares slope; :mod:`pkwidgets.lambda_z_bounds`).  The same
+    candidates are also fitted by a second rule (:data:`COMPARISON_RULE`,
+    otherwise the adjusted-R² search) so that a disagreement can be flagged.
+    """
     Ts, Xs, positive = ordered.time, ordered.excluded, exposure.positive
     rows = np.arange(Ts.shape[0])[:, None]
     manual = ~np.isnan(window_start)
@@ -44,5 +58,13 @@ def fit_terminal_phase(ordered: SortedSamples, exposure: Exposure, window_start,
         eps = 1e-9 * np.maximum(1.0, np.abs(window_end))
         cand_man = positive & ~Xs & (Ts >= window_start - eps) & (Ts <= window_end + eps)
     candidate = np.where(manual, cand_man, cand_auto)
-    fit = fit_lambda_z_samples_major(Ts, ordered.value, candidate, manual)
-    return TerminalPhase(fit, np.where(exposure.measurable, fit.lamz, np.nan), manual)
+    tmax = exposure.tmax if route == "extravascular" else None
+    fit = fit_lambda_z(Ts, ordered.value, candidate, manual, axis=0, rule=rule, tmax=tmax)
+    other = fit_lambda_z(Ts, ordered.value, candidate & ~manual, np.zeros_like(manual), axis=0,
+                         rule=COMPARISON_RULE.get(rule, "adjusted-r2"), tmax=tmax)
+    with np.errstate(invalid="ignore"):
+        margin = np.where(fit.df >= 1, stats.t.ppf(0.975, np.maximum(fit.df, 1)) * fit.se, np.nan)
+    cols = np.arange(Ts.shape[1])
+    first = np.where(exposure.positive.any(axis=0), Ts[np.argmax(exposure.positive, axis=0), cols], np.nan)
+    return TerminalPhase(fit, np.where(exposure.measurable, fit.lamz, np.nan), manual, margin,
+                         np.where(manual, np.nan, other.lamz), first)

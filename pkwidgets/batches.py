@@ -61,7 +61,7 @@ def _one_batch(pad, flat, ids, per_profile, terminal, options, key_texts, record
                      duration=_take(per_profile["duration"], ids), tau=_take(per_profile["tau"], ids),
                      auc_method=options.auc_method, terminal=term, exclude=arrays["exclude"], blq=arrays["blq"],
                      lloq=arrays["lloq"], partial=_partial_for(options.partial, ids), blq_rules=options.blq_rules,
-                     qc=options.qc)
+                     qc=options.qc, lambda_z_rule=options.lambda_z_rule)
     return res, arrays["exclude"], term, replay
 
 

@@ -119,7 +119,7 @@ class ChunkResult(NamedTuple):
 @fill_doc
 def nca_arrays(time, conc, *, options=None, dose=None, route="extravascular", duration=None, tau=None,
                auc_method="linear", terminal="auto", exclude=None, blq=None, lloq=None, partial=(),
-               blq_rules=None, qc=None):
+               blq_rules=None, qc=None, lambda_z_rule=None):
     r"""Non-compartmental parameters of many profiles at once (stages: see the module docstring).
 
     Parameters
@@ -160,7 +160,8 @@ def nca_arrays(time, conc, *, options=None, dose=None, route="extravascular", du
     ValueError: time 1.0 appears twice in profile 0; each profile needs distinct sampling times (average replicates or drop one).
     """
     opts = build_options(options, route=route, auc_method=auc_method, duration=_scalar(duration),
-                         tau=_scalar(tau), terminal=terminal, partial=partial, blq_rules=blq_rules, qc=qc)
+                         tau=_scalar(tau), terminal=terminal, partial=partial, blq_rules=blq_rules, qc=qc,
+                         lambda_z_rule=lambda_z_rule)
     arrays = prepare_inputs(time, conc, opts, dose=dose, duration=_per_profile(duration), tau=_per_profile(tau),
                             exclude=exclude, blq=blq, lloq=lloq)
     plan = _plan(opts, arrays)
@@ -218,9 +219,11 @@ def _chunk(arrays: ProfileArrays, plan: _Plan) -> ChunkResult:
     anchor = anchor_at_dose_time(samples, classified, tau, route, options.blq_rules)
     ordered = sort_samples(samples, classified, anchor)
     exposure = measure_exposure(ordered, classified.measured, tau, route, options.auc_method)
-    terminal = fit_terminal_phase(ordered, exposure, arrays.window_start, arrays.window_end, route)
+    terminal = fit_terminal_phase(ordered, exposure, arrays.window_start, arrays.window_end, route,
+                                  options.lambda_z_rule)
     regimen = regimen_values(ordered, exposure, terminal, anchor, arrays, route, plan.steady)
-    values = derive_parameters({**_measured(exposure, terminal), **regimen.values}, regimen.inputs, plan.derived)
+    values = derive_parameters({**_measured(exposure, terminal), **regimen.values},
+                               {**regimen.inputs, "lambda_z_margin": terminal.margin}, plan.derived)
     stage_flags = {**anchor.flags, "times_sorted": ordered.times_sorted, **regimen.flags}
     flags = review_flags(values, stage_flags, exposure, terminal, anchor, samples, options.qc, route, tau)
     params, flags["nonfinite_result"] = reported_values(values, plan.codes, exposure.measurable)

@@ -22,6 +22,7 @@ from typing import Any, Mapping
 
 from .blq import BLQRules
 from .qc import QCThresholds
+from .terminal_rules import TERMINAL_RULES
 
 __all__ = ["NCAOptions", "ColumnMap", "OPTION_RULES", "ROUTES", "AUC_METHODS", "LAMBDA_Z_RULES",
            "check_option", "check_choice", "build_options"]
@@ -30,8 +31,8 @@ __all__ = ["NCAOptions", "ColumnMap", "OPTION_RULES", "ROUTES", "AUC_METHODS", "
 ROUTES = ("extravascular", "iv-bolus", "iv-infusion")
 #: Area rules (CDISC PK analytical methods, codelist C172330).
 AUC_METHODS = ("linear", "lin-up/log-down", "lin-log")
-#: Automatic terminal-phase selection rules (see :mod:`pkwidgets.lambda_z`).
-LAMBDA_Z_RULES = ("adjusted-r2",)
+#: Automatic terminal-phase selection rules (see :mod:`pkwidgets.terminal_rules`).
+LAMBDA_Z_RULES = TERMINAL_RULES
 
 
 def check_choice(what: str, value, choices) -> Any:
@@ -153,7 +154,13 @@ class NCAOptions:
         Lambda-z window: the automatic search, one window for all profiles,
         or windows per profile.
     lambda_z_rule : str
-        Automatic terminal-phase rule, one of :data:`LAMBDA_Z_RULES`.
+        Automatic terminal-phase rule, one of :data:`LAMBDA_Z_RULES`
+        (:mod:`pkwidgets.terminal_rules`).  The default, ``"tail-extension"``,
+        is this project's rule: it grows the window back from the last three
+        points while earlier points stay on the line within its own noise,
+        and starts no earlier than 2 x TMAX for extravascular doses
+        (``bench/terminal_accuracy.py`` measures it against the true terminal
+        rate).  ``"adjusted-r2"`` is the search for the highest adjusted R².
     blq_rules : BLQRules
     partial : sequence of (start, end) or dict of name -> (start, end)
         Partial-area intervals after the dose.
@@ -176,7 +183,7 @@ class NCAOptions:
     duration: float | None = None
     tau: float | None = None
     terminal: Any = "auto"
-    lambda_z_rule: str = "adjusted-r2"
+    lambda_z_rule: str = "tail-extension"
     blq_rules: BLQRules = field(default_factory=BLQRules)
     partial: Any = ()
     qc: QCThresholds = field(default_factory=QCThresholds)
@@ -254,11 +261,9 @@ def build_options(options: NCAOptions | None = None, **kwargs) -> NCAOptions:
 
     Examples
     --------
-    >>> build_options(NCAOptions(tau=12.0), tau=None, route="iv-bolus")
-    NCAOptions(route='iv-bolus', auc_method='linear', duration=None, tau=12.0, terminal='auto', \
-lambda_z_rule='adjusted-r2', blq_rules=BLQRules(before='zero', between='missing', after='zero'), partial=(), \
-qc=QCThresholds(max_extrapolated_pct=20.0, min_r2adj=0.8, min_points=3, min_span=2.0, max_predose_pct=5.0), \
-occasion=None)
+    >>> o = build_options(NCAOptions(tau=12.0), tau=None, route="iv-bolus")
+    >>> o.route, o.tau, o.auc_method
+    ('iv-bolus', 12.0, 'linear')
     """
     for name in kwargs:
         if name not in _DEFAULTS:

@@ -35,6 +35,13 @@ _IV = ("iv-bolus", "iv-infusion")
 _EV = ("extravascular",)
 _LN2 = np.log(2.0)
 
+
+def _positive_reciprocal(numerator, denominator):
+    """``numerator / denominator`` where the denominator is > 0, else NaN (an unbounded interval end)."""
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(denominator > 0, numerator / denominator, np.nan)
+
+
 #: Per-profile inputs a ``derive`` function may name besides parameter codes.
 DERIVE_INPUTS = {
     "dose": "dose amount (NaN when none is given)",
@@ -42,6 +49,7 @@ DERIVE_INPUTS = {
     "half_duration": "half the infusion duration (0 when there is none)",
     "lambda_z_intercept": "ln C at dose time of the lambda-z regression line",
     "auc_to_first_sample": "area from dose time to the first sample after it (IV bolus, from C0)",
+    "lambda_z_margin": "t(0.975, n - 2) x SE(lambda z): half-width of the 95 % interval of LAMZ",
 }
 
 
@@ -75,6 +83,10 @@ class Parameter:
         ``"table"``: computed by :func:`pkwidgets.nca` across profiles
         (accumulation ratios), not by :func:`pkwidgets.nca_arrays`;
         ``"urine"``: computed by :func:`pkwidgets.nca_urine`.
+    cdisc : bool
+        False for pkwidgets' own codes (the 95 % bounds ``*_LOWER95`` /
+        ``*_UPPER95``): they are not CDISC terms and are left out of an SDTM
+        PP domain.
     """
 
     code: str
@@ -86,6 +98,7 @@ class Parameter:
     routes: tuple = ROUTES
     steady_state: bool = False
     layer: str = "engine"
+    cdisc: bool = True
 
     @cached_property
     def inputs(self) -> tuple:
@@ -121,6 +134,11 @@ PARAMETERS: dict[str, Parameter] = {
            derive=lambda AUCLST, CLST, LAMZ: AUCLST + CLST / LAMZ),
         _P("AUCIFP", "AUC Infinity Pred", "auc", "AUCLST + CLSTP / LAMZ, CLSTP from the lambda-z fit.",
            derive=lambda AUCLST, CLSTP, LAMZ: AUCLST + CLSTP / LAMZ),
+        _P("AUCIFO_LOWER95", "AUC Infinity Obs Lower 95% Bound", "auc", "AUCLST + CLST / LAMZ_UPPER95.",
+           cdisc=False, derive=lambda AUCLST, CLST, LAMZ_UPPER95: AUCLST + CLST / LAMZ_UPPER95),
+        _P("AUCIFO_UPPER95", "AUC Infinity Obs Upper 95% Bound", "auc",
+           "AUCLST + CLST / LAMZ_LOWER95 (NaN if LAMZ_LOWER95 is not > 0).", cdisc=False,
+           derive=lambda AUCLST, CLST, LAMZ_LOWER95: AUCLST + _positive_reciprocal(CLST, LAMZ_LOWER95)),
         _P("AUCPEO", "AUC %Extrapolation Obs", "percent", "100 * (AUCIFO - AUCLST) / AUCIFO.", True,
            derive=lambda AUCIFO, AUCLST: 100.0 * (AUCIFO - AUCLST) / AUCIFO),
         _P("AUCPEP", "AUC %Extrapolation Pred", "percent", "100 * (AUCIFP - AUCLST) / AUCIFP.", True,
@@ -156,6 +174,17 @@ PARAMETERS: dict[str, Parameter] = {
         _P("R2ADJ", "R Squared Adjusted", "ratio", "1 - (1 - R2) (n - 1) / (n - 2).", True),
         _P("CORRXY", "Correlation Between TimeX and Log ConcY", "ratio",
            "Pearson correlation of t and ln(C) over the fit points.", True),
+        # 95 % bounds (pkwidgets codes, not CDISC terms): the t interval of the least-squares slope
+        # (Draper & Smith, from memory), mapped exactly through t1/2 = ln2/LAMZ and AUCLST + CLST/LAMZ;
+        # NaN where the lower LAMZ bound is not positive (flag half_life_interval_wide)
+        _P("LAMZ_LOWER95", "Lambda z Lower 95% Bound", "per_time", "LAMZ - t(0.975, n-2) SE(LAMZ).",
+           cdisc=False, derive=lambda LAMZ, lambda_z_margin: LAMZ - lambda_z_margin),
+        _P("LAMZ_UPPER95", "Lambda z Upper 95% Bound", "per_time", "LAMZ + t(0.975, n-2) SE(LAMZ).",
+           cdisc=False, derive=lambda LAMZ, lambda_z_margin: LAMZ + lambda_z_margin),
+        _P("LAMZHL_LOWER95", "Half-Life Lower 95% Bound", "time", "ln(2) / LAMZ_UPPER95.", cdisc=False,
+           derive=lambda LAMZ_UPPER95: _LN2 / LAMZ_UPPER95),
+        _P("LAMZHL_UPPER95", "Half-Life Upper 95% Bound", "time", "ln(2) / LAMZ_LOWER95 (NaN if not > 0).",
+           cdisc=False, derive=lambda LAMZ_LOWER95: _positive_reciprocal(_LN2, LAMZ_LOWER95)),
         _P("CLSTP", "Last Nonzero Conc Predicted", "conc",
            "exp(intercept - LAMZ * TLST) from the lambda-z fit.", True,
            derive=lambda lambda_z_intercept, LAMZ, TLST: np.exp(lambda_z_intercept - LAMZ * TLST)),

@@ -28,6 +28,7 @@ import pandas as pd
 
 from .errors import InputDataError
 from .io import write_csv_atomic
+from .parameters import PARAMETERS
 
 __all__ = ["PP_LABELS", "PP_REQUIRED", "to_pp", "write_pp", "check_pp", "cdisc_unit"]
 
@@ -185,7 +186,8 @@ def to_pp(long, *, by, studyid=None, specimen=None, reference_times=None, keys=N
     -------
     DataFrame
         Columns :data:`PP_LABELS` in SDTMIG order, one row per profile and
-        parameter (per interval for AUCINT); PPSEQ numbers a subject's
+        parameter (per interval for AUCINT), leaving out pkwidgets' own codes
+        that are not CDISC terms (the 95 % bounds); PPSEQ numbers a subject's
         records from 1; units in the CDISC ASCII form (:func:`cdisc_unit`);
         PPORRES = PPSTRESC, PPORRESU = PPSTRESU (no conversion is made).
     """
@@ -196,6 +198,8 @@ def to_pp(long, *, by, studyid=None, specimen=None, reference_times=None, keys=N
     missing = [c for c in need if c not in long.columns]
     if missing:
         raise ValueError(f"long must be the table of res.to_long(); columns {missing} are missing.")
+    own = long["PPTESTCD"].astype(str).map(lambda c: c in PARAMETERS and not PARAMETERS[c].cdisc)
+    long = long.loc[~own.to_numpy()].reset_index(drop=True)  # pkwidgets' own codes (95 % bounds) are not PP terms
     part = long["PPTESTCD"].astype(str).eq("AUCINT")
     if part.any() and ("PPSTINT" not in long or long.loc[part, "PPSTINT"].fillna("").eq("").any()):
         raise ValueError("partial areas (AUCINT) need their interval in PPSTINT/PPENINT: run nca with units= "

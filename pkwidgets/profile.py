@@ -50,7 +50,7 @@ def exclusion_mask(time, exclude, *, profile=None) -> np.ndarray:
 @fill_doc
 def nca_profile(time, conc, *, options=None, dose=None, route="extravascular", duration=None, tau=None,
                 auc_method="linear", terminal="auto", exclude=(), blq=None, lloq=None, partial=(),
-                blq_rules=None, qc=None, units=None):
+                blq_rules=None, qc=None, lambda_z_rule=None, units=None):
     """Non-compartmental parameters of one concentration-time profile.
 
     Parameters
@@ -94,7 +94,7 @@ def nca_profile(time, conc, *, options=None, dose=None, route="extravascular", d
     res = nca_arrays(
         time, conc, options=options, dose=dose, route=route, duration=duration, tau=tau, auc_method=auc_method,
         terminal=terminal, exclude=exclusion_mask(time, exclude), blq=blq, lloq=lloq, partial=partial,
-        blq_rules=blq_rules, qc=qc,
+        blq_rules=blq_rules, qc=qc, lambda_z_rule=lambda_z_rule,
     )
     return _profile_series(res, units)
 

