@@ -45,12 +45,21 @@ def pick(a, idx):
     return a[idx, np.arange(a.shape[1])]
 
 
-def anchor_at_dose_time(samples: ChunkSamples, classified: ClassifiedSamples, tau, route, rules) -> DoseTimePoint:
-    """Find or add the point at dose time; updates ``classified.status`` of the samples it uses or drops."""
+def anchor_at_dose_time(samples: ChunkSamples, classified: ClassifiedSamples, tau, route, rules,
+                        predose_window=0.1) -> DoseTimePoint:
+    """Find or add the point at dose time; updates ``classified.status`` of the samples it uses or drops.
+
+    At steady state only a pre-dose sample taken at most ``predose_window`` x
+    tau before the dose can stand at dose time; earlier ones get the status
+    ``PREDOSE_OUTSIDE_WINDOW``.
+    """
     t, value, usable = samples.time, classified.value, classified.usable
     at0 = usable & (t == 0)
     has0 = at0.any(axis=0)
-    pre_vals, i_pre, has_pre = _latest_predose(samples, classified, rules.before)
+    with np.errstate(invalid="ignore"):
+        too_early = classified.before_dose & ~np.isnan(tau) & (t < -predose_window * tau)
+    classified.status[too_early] = SampleStatus.PREDOSE_OUTSIDE_WINDOW
+    pre_vals, i_pre, has_pre = _latest_predose(samples, classified, rules.before, ~too_early)
     trough = np.where(has0, np.max(np.where(at0, value, -np.inf), axis=0),
                       np.where(has_pre, pick(pre_vals, i_pre), np.nan))
     with np.errstate(invalid="ignore"):
@@ -76,9 +85,9 @@ def anchor_at_dose_time(samples: ChunkSamples, classified: ClassifiedSamples, ta
     return DoseTimePoint(c0, need0, trough, cmin_tau, usable, flags)
 
 
-def _latest_predose(samples, classified, before_rule):
+def _latest_predose(samples, classified, before_rule, allowed):
     """Values of the pre-dose samples (BLQ read by the 'before' rule), the row of the latest, whether any."""
-    before = classified.before_dose
+    before = classified.before_dose & allowed
     before_blq = before & samples.blq
     pre_vals = np.where(before_blq, rule_value(before_rule, samples.lloq, before_blq, "before"), samples.conc)
     pre = before & ~np.isnan(pre_vals)

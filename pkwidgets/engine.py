@@ -216,7 +216,7 @@ def _chunk(arrays: ProfileArrays, plan: _Plan) -> ChunkResult:
     route = options.route
     samples = ChunkSamples.from_profiles(arrays)
     classified = classify_samples(samples, options.blq_rules)
-    anchor = anchor_at_dose_time(samples, classified, tau, route, options.blq_rules)
+    anchor = anchor_at_dose_time(samples, classified, tau, route, options.blq_rules, options.predose_window)
     ordered = sort_samples(samples, classified, anchor)
     exposure = measure_exposure(ordered, classified.measured, tau, route, options.auc_method)
     terminal = fit_terminal_phase(ordered, exposure, arrays.window_start, arrays.window_end, route,

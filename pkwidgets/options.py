@@ -104,6 +104,12 @@ def _qc(name, value):
     raise TypeError(f"The {name!r} option must be None, a QCThresholds or a dict; got {type(value).__name__}.")
 
 
+def _fraction(name, value):
+    if isinstance(value, bool) or not isinstance(value, (int, float)) or not (0.0 <= value <= 1.0):
+        raise ValueError(f"The {name!r} option must be a number from 0 to 1 (a share of tau); got {value!r}.")
+    return float(value)
+
+
 def _occasion(name, value):
     if value is not None and not isinstance(value, str):
         raise TypeError(f"The {name!r} option must be a column name (str) or None; got {type(value).__name__}.")
@@ -126,6 +132,7 @@ OPTION_RULES = {
     "blq_rules": _blq_rules,
     "qc": _qc,
     "occasion": _occasion,
+    "predose_window": _fraction,
 }
 
 
@@ -167,6 +174,11 @@ class NCAOptions:
     qc : QCThresholds
     occasion : str, optional
         A profile-key column that orders dosing occasions (tables only).
+    predose_window : float
+        At steady state, a pre-dose sample stands at dose time as the trough
+        only when taken at most this share of tau before the dose (0.1: within
+        1.2 h for tau = 12 h; common practice, no source); earlier ones are
+        listed as not used.
 
     Examples
     --------
@@ -188,6 +200,7 @@ class NCAOptions:
     partial: Any = ()
     qc: QCThresholds = field(default_factory=QCThresholds)
     occasion: str | None = None
+    predose_window: float = 0.1
 
     def __post_init__(self):
         for f in fields(self):

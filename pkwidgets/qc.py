@@ -112,6 +112,7 @@ class SampleStatus:
     BEFORE_DOSE = 7
     BOLUS_PREDOSE = 8
     NO_MEASURABLE = 9
+    PREDOSE_OUTSIDE_WINDOW = 10
 
 
 #: Status code -> reason written in the unused-rows table.
@@ -126,4 +127,6 @@ STATUS_REASONS = {
     SampleStatus.BEFORE_DOSE: "sampled before the dose (negative time after dose)",
     SampleStatus.BOLUS_PREDOSE: "IV bolus pre-dose sample: the back-extrapolated C0 is used at dose time",
     SampleStatus.NO_MEASURABLE: "profile has no measurable concentration",
+    SampleStatus.PREDOSE_OUTSIDE_WINDOW: "steady state: pre-dose sample taken earlier than the pre-dose window "
+                                         "(predose_window x tau before dose time), not used as the trough",
 }

@@ -266,3 +266,25 @@ def test_partial_names_must_be_aucint():
     # CDISC: a partial area is AUCINT (shared/REFERENCES.md, seen); other names are refused
     with pytest.raises(ValueError, match="partial interval name 'early' must start with 'AUCINT'"):
         pk.nca_profile([0, 1, 2], [0, 5, 3], partial={"early": (0, 1)})
+
+
+def test_steady_state_predose_sample_only_within_the_window():
+    # steady state by superposition of a one-compartment oral dose every tau (Gibaldi & Perrier, from memory):
+    # a sample 11 h before the dose (1 h after the previous dose) is no trough; one 0.5 h before it is.
+    # The window (10 % of tau) is common practice, no source.
+    tau, ka, k = 12.0, 1.5, 0.12
+
+    def css(t):  # concentration at time t after a dose, at steady state
+        t = np.mod(t, tau)
+        return 10 * ka / (ka - k) * (np.exp(-k * t) / (1 - np.exp(-k * tau)) - np.exp(-ka * t) / (1 - np.exp(-ka * tau)))
+
+    t = np.array([0.5, 1, 2, 4, 6, 8, 12.0])
+    early = pk.nca_profile(np.r_[-11.0, t], css(np.r_[-11.0, t]), tau=tau)
+    assert early.attrs["sample_status"][0].startswith("steady state: pre-dose sample taken earlier")
+    assert "predose_imputed" in early.attrs["flags"] and "predose_shifted" not in early.attrs["flags"]
+    assert early["CMIN"] == pytest.approx(css(t).min(), rel=1e-12)
+    late = pk.nca_profile(np.r_[-0.5, t], css(np.r_[-0.5, t]), tau=tau)
+    assert "predose_shifted" in late.attrs["flags"] and late.attrs["sample_status"][0] == "used"
+    assert late["CMIN"] == pytest.approx(min(css(-0.5), css(t).min()), rel=1e-12)
+    wide = pk.nca_profile(np.r_[-11.0, t], css(np.r_[-11.0, t]), tau=tau, options=pk.NCAOptions(predose_window=1.0))
+    assert "predose_shifted" in wide.attrs["flags"]
