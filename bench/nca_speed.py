@@ -53,6 +53,10 @@ TARGET_RATIO = 300         # x faster than the per-profile loop
 TARGET_MEMORY = 4.0        # peak <= 4 x input arrays
 
 
+#: The rule the loop reference implements (adjusted-R² search); the default rule is timed beside it.
+RULE = "adjusted-r2"
+
+
 def simulate(P, seed=20261202):
     """Synthetic oral profiles: (time, conc, blq), each (P, 16); conc NaN where BLQ or missing."""
     rng = np.random.default_rng(seed)
@@ -91,12 +95,12 @@ def machine():
             f"NumPy {np.__version__}; load average {load:.2f} at start")
 
 
-def time_engine(t, c, blq, repeat):
+def time_engine(t, c, blq, repeat, rule=RULE):
     """Best and median wall time, and the CPU time of the best run, over ``repeat`` runs."""
     runs = []
     for _ in range(repeat):
         c0, w0 = time.process_time(), time.perf_counter()
-        nca_arrays(t, c, blq=blq, dose=DOSE, lloq=LLOQ)
+        nca_arrays(t, c, blq=blq, dose=DOSE, lloq=LLOQ, lambda_z_rule=rule)
         runs.append((time.perf_counter() - w0, time.process_time() - c0))
     runs.sort()
     return runs[0][0], runs[len(runs) // 2][0], runs[0][1]
@@ -117,7 +121,7 @@ def time_reference(t, c, blq, budget):
 
 def check_equal(t, c, blq, n):
     """Largest relative difference engine vs reference over the first n profiles."""
-    fast = nca_arrays(t[:n], c[:n], blq=blq[:n], dose=DOSE, lloq=LLOQ)
+    fast = nca_arrays(t[:n], c[:n], blq=blq[:n], dose=DOSE, lloq=LLOQ, lambda_z_rule=RULE)
     ref, _ = reference_many(t[:n], c[:n], blq[:n], dose=DOSE)
     worst = 0.0
     for code in REFERENCE_CODES:
@@ -134,7 +138,7 @@ def check_equal(t, c, blq, n):
 def peak_memory(t, c, blq):
     tracemalloc.start()
     tracemalloc.reset_peak()
-    res = nca_arrays(t, c, blq=blq, dose=DOSE, lloq=LLOQ)
+    res = nca_arrays(t, c, blq=blq, dose=DOSE, lloq=LLOQ, lambda_z_rule=RULE)
     _, peak = tracemalloc.get_traced_memory()
     tracemalloc.stop()
     out_bytes = sum(v.nbytes for v in res.values()) + sum(v.nbytes for v in res.flags.values())
@@ -154,7 +158,8 @@ def main(argv=None):
 
     print("pkwidgets NCA speed benchmark (synthetic one-compartment oral profiles, 16 samples, BLQ)")
     print(f"machine: {machine()}")
-    print(f"engine: CHUNK={engine.CHUNK} profiles, threads={args.threads or os.cpu_count()}")
+    print(f"engine: CHUNK={engine.CHUNK} profiles, threads={args.threads or os.cpu_count()}; rule {RULE} "
+          "(as the reference); the default rule (tail-extension) timed in the last column")
     print(f"reference: per-profile loop, numpy.trapezoid + scipy.stats.linregress over candidate windows; "
           f"budget {args.ref_budget:g} s per size")
 
@@ -164,19 +169,20 @@ def main(argv=None):
     print(f"engine == reference on 2000 profiles: max relative difference {worst:.1e}")
     print()
     head = (f"{'profiles':>9} {'engine s':>9} {'median s':>9} {'cpu s':>7} {'profiles/s':>11} "
-            f"{'reference s':>12} {'ref profiles/s':>14} {'ratio':>7}  reference timing")
+            f"{'reference s':>12} {'ref profiles/s':>14} {'ratio':>7} {'default rule s':>15}  reference timing")
     print(head)
     rows = []
     for P in sizes:
         tp, cp, bp = t[:P], c[:P], blq[:P]
         wall, median, cpu = time_engine(tp, cp, bp, args.repeat)
+        wall_default = time_engine(tp, cp, bp, args.repeat, rule=None)[0]
         n_ref, spent = time_reference(tp, cp, bp, args.ref_budget)
         ref_time = spent * P / n_ref
         how = "measured on all" if n_ref == P else f"measured on {n_ref}, extrapolated"
         ratio = ref_time / wall
         rows.append((P, wall, ratio))
         print(f"{P:>9} {wall:>9.3f} {median:>9.3f} {cpu:>7.2f} {P / wall:>11,.0f} {ref_time:>12.1f} {n_ref / spent:>14,.0f} "
-              f"{ratio:>7.0f}  {how}", flush=True)
+              f"{ratio:>7.0f} {wall_default:>15.3f}  {how}", flush=True)
 
     P = max(sizes)
     peak, out_bytes = peak_memory(t[:P], c[:P], blq[:P])

@@ -59,12 +59,11 @@ def fit_terminal_phase(ordered: SortedSamples, exposure: Exposure, window_start,
         cand_man = positive & ~Xs & (Ts >= window_start - eps) & (Ts <= window_end + eps)
     candidate = np.where(manual, cand_man, cand_auto)
     tmax = exposure.tmax if route == "extravascular" else None
-    fit = fit_lambda_z(Ts, ordered.value, candidate, manual, axis=0, rule=rule, tmax=tmax)
-    other = fit_lambda_z(Ts, ordered.value, candidate & ~manual, np.zeros_like(manual), axis=0,
-                         rule=COMPARISON_RULE.get(rule, "adjusted-r2"), tmax=tmax)
+    fit = fit_lambda_z(Ts, ordered.value, candidate, manual, axis=0, rule=rule, tmax=tmax,
+                       compare=COMPARISON_RULE.get(rule, "adjusted-r2"))
     with np.errstate(invalid="ignore"):
         margin = np.where(fit.df >= 1, stats.t.ppf(0.975, np.maximum(fit.df, 1)) * fit.se, np.nan)
     cols = np.arange(Ts.shape[1])
     first = np.where(exposure.positive.any(axis=0), Ts[np.argmax(exposure.positive, axis=0), cols], np.nan)
     return TerminalPhase(fit, np.where(exposure.measurable, fit.lamz, np.nan), manual, margin,
-                         np.where(manual, np.nan, other.lamz), first)
+                         fit.lamz_compare, first)

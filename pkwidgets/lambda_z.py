@@ -66,6 +66,7 @@ class LambdaZFit:
     se: np.ndarray = None
     resid_sd: np.ndarray = None
     df: np.ndarray = None
+    lamz_compare: np.ndarray = None  # lambda z of the ``compare`` rule on the same windows (automatic profiles)
 
 
 def _suffix_sums(t, c, candidate, tref, yref):
@@ -171,13 +172,19 @@ def _assemble(w, start, has, shape):
     )
 
 
-def _fit_samples_major(t, c, candidate, manual, rule, options):
+def _fit_samples_major(t, c, candidate, manual, rule, options, compare=None):
     w = _window_stats(t, c, candidate)
     start_auto, has_auto = terminal_rules.choose_window(w, rule, **options)
     start_manual, has_manual = _manual_window(w)
     start = np.where(manual, start_manual, start_auto)
     has = np.where(manual, has_manual, has_auto)
-    return _assemble(w, start, has, t.shape)
+    fit = _assemble(w, start, has, t.shape)
+    if compare is not None:  # a second rule on the same suffix statistics (no second pass over the data)
+        rule2, options2 = compare
+        start2, has2 = terminal_rules.choose_window(w, rule2, **options2)
+        rows = np.arange(t.shape[1])
+        fit.lamz_compare = np.where(has2 & ~manual, -w.slope[start2, rows], np.nan)
+    return fit
 
 
 def _samples_major(t, c, candidate, axis):
@@ -192,7 +199,7 @@ def _samples_major(t, c, candidate, axis):
 
 def fit_lambda_z(t, c, candidate, manual, *, axis=-1, rule="adjusted-r2", min_points=3,
                  tol=ADJ_R2_TOLERANCE, tmax=None, last_n=3,
-                 off_line_levels=terminal_rules.OFF_LINE_LEVELS, run=terminal_rules.EXTENSION_RUN):
+                 off_line_levels=terminal_rules.OFF_LINE_LEVELS, run=terminal_rules.EXTENSION_RUN, compare=None):
     r"""Fit lambda z for many profiles at once.
 
     Parameters
@@ -226,6 +233,10 @@ def fit_lambda_z(t, c, candidate, manual, *, axis=-1, rule="adjusted-r2", min_po
         One-sided t levels above and below the line of "tail-extension".
     run : int
         Consecutive off-line points that stop "tail-extension".
+    compare : str, optional
+        A second rule applied to the same window statistics; its lambda z
+        is returned as ``lamz_compare`` (NaN for manual windows), so that
+        disagreeing rules can be flagged at little extra cost.
 
     Returns
     -------
@@ -244,11 +255,12 @@ def fit_lambda_z(t, c, candidate, manual, *, axis=-1, rule="adjusted-r2", min_po
     ...
     ValueError: The 'rule' option must be one of 'adjusted-r2', 'two-tmax', ..., 'tail-extension'; got 'r2'.
     """
-    options = terminal_rules.rule_options(rule, min_points=min_points, tol=tol, tmax=tmax, last_n=last_n,
-                                          off_line_levels=off_line_levels, run=run)
+    given = dict(min_points=min_points, tol=tol, tmax=tmax, last_n=last_n, off_line_levels=off_line_levels, run=run)
+    options = terminal_rules.rule_options(rule, **given)
+    second = None if compare is None else (compare, terminal_rules.rule_options(compare, **given))
     ts, cs, cand = _samples_major(t, c, candidate, axis)
     manual = np.broadcast_to(np.asarray(manual, dtype=bool), ts.shape[1:])
-    fit = _fit_samples_major(ts, cs, cand, manual, rule, options)
+    fit = _fit_samples_major(ts, cs, cand, manual, rule, options, second)
     fit.used = fit.used[:, 0] if np.ndim(t) == 1 else np.ascontiguousarray(np.moveaxis(fit.used, 0, axis))
     return fit
 
