@@ -39,6 +39,8 @@ test: $(VENV)/.stamp-test browser-deps
 
 bench: $(VENV)/.stamp-test
 	$(PY) bench/nca_speed.py
+	$(PY) bench/terminal_accuracy.py
+	$(PY) bench/design_speed.py
 	$(PY) bench/widget_speed.py
 
 clean:
