@@ -15,17 +15,17 @@ validation: ``The 'route' option must be one of 'extravascular', 'iv-bolus',
 
 from __future__ import annotations
 
-import difflib
 import math
 from dataclasses import MISSING, dataclass, field, fields, replace
 from typing import Any, Mapping
 
 from .blq import BLQRules
+from .choices import check_choice
 from .qc import QCThresholds
 from .terminal_rules import TERMINAL_RULES
 
 __all__ = ["NCAOptions", "ColumnMap", "OPTION_RULES", "ROUTES", "AUC_METHODS", "LAMBDA_Z_RULES",
-           "check_option", "check_choice", "build_options"]
+           "check_option", "check_choice", "build_options"]  # check_choice: re-exported from .choices
 
 #: Dosing routes.
 ROUTES = ("extravascular", "iv-bolus", "iv-infusion")
@@ -33,24 +33,6 @@ ROUTES = ("extravascular", "iv-bolus", "iv-infusion")
 AUC_METHODS = ("linear", "lin-up/log-down", "lin-log")
 #: Automatic terminal-phase selection rules (see :mod:`pkwidgets.terminal_rules`).
 LAMBDA_Z_RULES = TERMINAL_RULES
-
-
-def check_choice(what: str, value, choices) -> Any:
-    """Return ``value`` if it is one of ``choices``, else raise a ``ValueError`` with a suggestion.
-
-    Examples
-    --------
-    >>> check_choice("The 'route' option", "iv bolus", ROUTES)
-    Traceback (most recent call last):
-    ...
-    ValueError: The 'route' option must be one of 'extravascular', 'iv-bolus', 'iv-infusion'; got 'iv bolus'. Did you mean 'iv-bolus'?
-    """
-    if isinstance(value, str) and value in choices:
-        return value
-    allowed = ", ".join(repr(c) for c in choices)
-    near = difflib.get_close_matches(str(value), [str(c) for c in choices], n=1, cutoff=0.6)
-    hint = f" Did you mean {near[0]!r}?" if near else ""
-    raise ValueError(f"{what} must be one of {allowed}; got {value!r}.{hint}")
 
 
 def _positive_or_none(name, value):

@@ -75,6 +75,8 @@ from numbers import Integral, Real
 import numpy as np
 from scipy import stats
 
+from .choices import check_choice
+
 __all__ = ["TERMINAL_RULES", "ADJ_R2_TOLERANCE", "OFF_LINE_LEVELS", "EXTENSION_RUN", "WindowStats", "choose_window",
            "rule_options", "window_aicc"]
 
@@ -269,7 +271,6 @@ def rule_options(rule, *, min_points=3, tol=ADJ_R2_TOLERANCE, tmax=None, last_n=
 
     Raises ``ValueError`` naming the option, what it must be and what it got.
     """
-    from .options import check_choice  # here, so that options.py may import TERMINAL_RULES from this module
 
     check_choice("The 'rule' option", rule, TERMINAL_RULES)
     if isinstance(min_points, bool) or not isinstance(min_points, Integral) or min_points < 2:

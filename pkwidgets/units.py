@@ -16,6 +16,7 @@ from functools import lru_cache
 
 import pint
 
+from .choices import check_choice
 from .errors import UnitError
 from .parameters import PARAMETERS
 
@@ -116,7 +117,6 @@ class StudyUnits:
 
 
 def _unknown_roles(unknown):
-    from .options import check_choice
 
     for name in unknown:
         try:
