@@ -95,7 +95,8 @@ def log_ticks(values, max_ticks=7):
     Ticks sit at 1-2-5 per decade, else 1-3, else 1 per decade, else every
     k-th decade: the densest choice with at most ``max_ticks`` ticks.  The
     domain runs from the largest tick at or below the smallest value to the
-    smallest tick at or above the largest value, so both ends carry a label.
+    smallest tick at or above the largest value, so both ends carry a label
+    (one tick step either side when all values sit on one tick).
 
     Returns
     -------
@@ -106,6 +107,8 @@ def log_ticks(values, max_ticks=7):
     --------
     >>> log_ticks([0.3, 7.0])
     (0.2, 10.0, [0.2, 0.5, 1.0, 2.0, 5.0, 10.0])
+    >>> log_ticks([5.0])
+    (2.0, 10.0, [2.0, 5.0, 10.0])
     >>> log_ticks([0.001, 1000.0])[2]
     [0.001, 0.01, 0.1, 1.0, 10.0, 100.0, 1000.0]
     """
@@ -117,9 +120,11 @@ def log_ticks(values, max_ticks=7):
     d0, d1 = math.floor(math.log10(vmin)), math.ceil(math.log10(vmax))
     best = None
     for mant in _MANTISSAS:
-        all_ticks = [float(f"{x:.12g}") for x in _ticks_with(mant, d0, d1)]
+        all_ticks = [float(f"{x:.12g}") for x in _ticks_with(mant, d0 - 1, d1 + 1)]
         lo = max(x for x in all_ticks if x <= vmin * (1 + 1e-12))
         hi = min(x for x in all_ticks if x >= vmax * (1 - 1e-12))
+        if lo == hi:                          # one value on a tick: one tick step either side
+            lo, hi = all_ticks[all_ticks.index(lo) - 1], all_ticks[all_ticks.index(hi) + 1]
         ticks = [x for x in all_ticks if lo <= x <= hi]
         best = (lo, hi, ticks)
         if len(ticks) <= max_ticks:

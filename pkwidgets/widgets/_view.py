@@ -204,7 +204,7 @@ def flag_words(names, qc=None):
 def readout_html(rows, flags, status=""):
     """HTML of the readout: a two-column table, then the flags as a list, then a status line."""
     cells = "".join(
-        f"<tr><th style='text-align:left;font-weight:normal;padding-right:1em'>{html.escape(k)}</th>"
+        f"<tr><th style='text-align:left;font-weight:normal;padding-right:1em;white-space:nowrap'>{html.escape(k)}</th>"
         f"<td class='pkw-value' style='text-align:right;font-variant-numeric:tabular-nums'>{html.escape(v)}</td></tr>"
         for k, v in rows)
     if flags:

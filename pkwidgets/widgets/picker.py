@@ -108,7 +108,7 @@ class TerminalPhasePicker(widgets.VBox):
                                     layout=widgets.Layout(width="300px"))
         self._save = widgets.Button(description="record choice", icon="save", button_style="primary")
         self._save.on_click(self._save_clicked)
-        self.readout = widgets.HTML(layout=widgets.Layout(width="340px"))
+        self.readout = widgets.HTML(layout=widgets.Layout(width="430px"))
         super().__init__([
             widgets.HBox([self._mode, self._scale, self._auto]),
             widgets.HBox([widgets.VBox([self.figure, self.legend, self._residuals.figure],
@@ -239,10 +239,11 @@ class TerminalPhasePicker(widgets.VBox):
                 self.status = message
                 return
             before = fit_times(self._time, self.result)
-            with self.hold_trait_notifications():
-                self.window, self.excluded = window, excluded
-            self.status = V.click_status(role, t, self.window, before, fit_times(self._time, self.result),
-                                         A.unit_labels(self.units)["time"] if self.units else "")
+            with self.readout.hold_sync():             # one readout message: results and what changed
+                with self.hold_trait_notifications():
+                    self.window, self.excluded = window, excluded
+                self.status = V.click_status(role, t, self.window, before, fit_times(self._time, self.result),
+                                             A.unit_labels(self.units)["time"] if self.units else "")
         return clicked
 
     def _brushed(self, change):
