@@ -140,6 +140,7 @@ def test_navigator_renders_and_steps(navigator_url):
                 ".some(e => e.textContent.includes('Subject 2'))", timeout=20_000)
             page.screenshot(path=str(OUT / "navigator_subject2.png"), full_page=True)
             # a thumbnail is a button: click the 7th (first row, 8 per row) and subject 7 is shown
+            page.locator(".pkw-overview").scroll_into_view_if_needed()
             box = page.locator(".pkw-overview .plotarea_events").bounding_box()
             page.mouse.click(box["x"] + 6.5 * box["width"] / 8, box["y"] + box["height"] / 4)
             page.wait_for_function(

@@ -19,7 +19,8 @@ import numpy as np
 
 from ..units import StudyUnits
 
-__all__ = ["NO_UNITS", "unit_labels", "with_unit", "x_range", "log_ticks", "legend_html", "linear_ticks", "residual_axis", "X_PAD"]
+__all__ = ["NO_UNITS", "unit_labels", "with_unit", "x_range", "log_ticks", "legend_html", "linear_ticks",
+           "residual_axis", "X_PAD"]
 
 #: Words used when the study declared no units.
 NO_UNITS = {"time": "time unit", "conc": "conc. unit", "LAMZ": "1/time unit", "LAMZHL": "time unit",

@@ -27,7 +27,8 @@ from ._fit_view import bounds_text, fit_bounds, fit_residuals, rerun_message, ti
 __all__ = [
     "ROLE_STYLE", "PointView", "ProfileView", "compute_profile", "profile_view", "toggle_time",
     "window_from_brush", "readout_rows", "readout_html", "flag_words",
-    "needs_review", "key_label", "choice_summary", "fit_interval", "click_action", "click_status", "record_steps", "legend_html",
+    "needs_review", "key_label", "choice_summary", "fit_interval", "click_action", "click_status", "record_steps",
+    "legend_html",
 ]
 
 #: Okabe–Ito colours (hex as published) with a marker shape and a legend word per role.
@@ -201,11 +202,20 @@ def flag_words(names, qc=None):
     return sorted(items, key=lambda it: it[0] != "review")
 
 
+def _indent(label):
+    """Left padding of a readout label: labels given with leading spaces (sub-rows) are indented."""
+    return "1.2em" if label.startswith(" ") else "0"
+
+
 def readout_html(rows, flags, status=""):
-    """HTML of the readout: a two-column table, then the flags as a list, then a status line."""
+    """HTML of the readout: a two-column table, then the flags as a list, then a status line.
+
+    A label starting with spaces (the "95 % bounds" under a value) is drawn indented.
+    """
     cells = "".join(
-        f"<tr><th style='text-align:left;font-weight:normal;padding-right:1em;white-space:nowrap'>{html.escape(k)}</th>"
-        f"<td class='pkw-value' style='text-align:right;font-variant-numeric:tabular-nums'>{html.escape(v)}</td></tr>"
+        f"<tr><th style='text-align:left;font-weight:normal;padding:1px 1em 1px {_indent(k)};white-space:nowrap'>"
+        f"{html.escape(k.strip())}</th><td class='pkw-value' style='text-align:right;padding:1px 0;"
+        f"font-variant-numeric:tabular-nums'>{html.escape(v)}</td></tr>"
         for k, v in rows)
     if flags:
         lis = "".join(
@@ -215,7 +225,8 @@ def readout_html(rows, flags, status=""):
     else:
         fl = "<p class='pkw-flags' style='margin:0.3em 0'>No checks raised.</p>"
     st = f"<p class='pkw-status' style='margin:0.3em 0'>{html.escape(status)}</p>" if status else ""
-    return f"<div class='pkw-readout'><table>{cells}</table>{fl}{st}</div>"
+    return (f"<div class='pkw-readout' style='line-height:1.4'><table style='border-collapse:collapse'>{cells}"
+            f"</table>{fl}{st}</div>")
 
 
 def toggle_time(excluded, t):

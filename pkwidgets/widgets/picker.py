@@ -96,12 +96,12 @@ class TerminalPhasePicker(widgets.VBox):
             options=[("click points", "click"), ("drag a window", "brush")], value="click",
             tooltips=["click a point: leave it out / take it back / bring it into the fit",
                       "drag across the time axis: fit the points inside"],
-            style={"button_width": "110px"})
+            style={"button_width": "125px"})
         self._mode.observe(self._mode_changed, names=["value"])
         self._scale = widgets.ToggleButtons(options=[("log scale", True), ("linear scale", False)], value=True,
-                                            style={"button_width": "95px"})
+                                            style={"button_width": "105px"})
         traitlets.link((self._scale, "value"), (self, "log_scale"))
-        self._auto = widgets.Button(description="back to automatic", icon="undo",
+        self._auto = widgets.Button(description="back to automatic", icon="undo", layout=widgets.Layout(width="170px"),
                                     tooltip="automatic terminal-phase search, nothing left out")
         self._auto.on_click(self._to_automatic)
         self._reason = widgets.Text(placeholder="why this choice (required to save)",
@@ -110,9 +110,13 @@ class TerminalPhasePicker(widgets.VBox):
         self._save.on_click(self._save_clicked)
         self.readout = widgets.HTML(layout=widgets.Layout(width="430px"))
         super().__init__([
-            widgets.HBox([self._mode, self._scale, self._auto]),
-            widgets.HBox([widgets.VBox([self.figure, self.legend, self._residuals.figure],
-                                       layout=widgets.Layout(width="630px")), self.readout]),
+            widgets.HBox([self._mode, self._scale, self._auto], layout=widgets.Layout(flex_flow="row wrap")),
+            # in a narrow output area (JupyterLab with its side bar) the readout moves below the figure
+            widgets.HBox([widgets.VBox([self.figure, self.legend],
+                                       layout=widgets.Layout(width="630px", flex="0 0 auto")),
+                          widgets.VBox([self.readout, self._residuals.figure],
+                                       layout=widgets.Layout(width="430px", flex="0 0 auto"))],
+                         layout=widgets.Layout(flex_flow="row wrap")),
             widgets.HBox([self._reason, self._save]),
         ])
         self.add_class("pkw-picker")
