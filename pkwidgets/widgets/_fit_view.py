@@ -17,7 +17,7 @@ from ..lambda_z import fit_lambda_z
 from ..lambda_z_bounds import aucifo_bounds, lambda_z_bounds
 
 __all__ = ["BOUND_CODES", "fit_bounds", "fit_residuals", "fit_times", "bounds_text", "rerun_message",
-           "times_text"]
+           "times_text", "click_status"]
 
 BOUND_CODES = ("LAMZ_LOWER95", "LAMZ_UPPER95", "LAMZHL_LOWER95", "LAMZHL_UPPER95", "AUCIFO_LOWER95",
                "AUCIFO_UPPER95")
@@ -138,3 +138,32 @@ def rerun_message(clicked, before, after, unit=""):
     if dropped or joined:
         msg += ". To keep the other points, drag a window over them"
     return msg + "."
+
+
+def click_status(role, t, window, before, after, time_unit=""):
+    """Status line after a click that changed the choice (nothing changes silently).
+
+    Parameters
+    ----------
+    role : str
+        Role of the clicked point before the click.
+    t : float
+        Its time.
+    window : (start, end) or None
+        The window after the click (None: the automatic search ran again).
+    before, after : list of float
+        Times of the fit points before and after (:func:`pkwidgets.widgets._fit_view.fit_times`).
+    time_unit : str
+
+    Returns
+    -------
+    str
+        With a hand window: what happened to the point, and that the window
+        was kept.  In automatic mode: :func:`rerun_message` (which points the
+        search chose).
+    """
+    if window is None:
+        return rerun_message(t, before, after, time_unit)
+    what = {"fit": "left out", "excluded": "taken back", "other": "brought into the fit"}[role]
+    return (f"{times_text([t], time_unit)} {what}; window {_num(window[0])} to {_num(window[1])} kept "
+            f"({len(after)} points in the fit)")

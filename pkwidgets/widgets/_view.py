@@ -22,7 +22,7 @@ from ..engine import nca_arrays
 from ..qc import FLAGS, QCThresholds, flag_message
 from ._axes import legend_html as _legend_html
 from ._axes import log_ticks, unit_labels, with_unit, x_range
-from ._fit_view import bounds_text, fit_bounds, fit_residuals, rerun_message, times_text
+from ._fit_view import bounds_text, click_status, fit_bounds, fit_residuals  # noqa: F401 (click_status: API)
 
 __all__ = [
     "ROLE_STYLE", "PointView", "ProfileView", "compute_profile", "profile_view", "toggle_time",
@@ -320,35 +320,6 @@ def click_action(role, t, window, excluded, fit_range):
             return window, excluded, CLICK_NO_FIT
         return (min(float(base[0]), float(t)), max(float(base[1]), float(t))), excluded, ""
     return window, excluded, CLICK_BLQ
-
-
-def click_status(role, t, window, before, after, time_unit=""):
-    """Status line after a click that changed the choice (nothing changes silently).
-
-    Parameters
-    ----------
-    role : str
-        Role of the clicked point before the click.
-    t : float
-        Its time.
-    window : (start, end) or None
-        The window after the click (None: the automatic search ran again).
-    before, after : list of float
-        Times of the fit points before and after (:func:`pkwidgets.widgets._fit_view.fit_times`).
-    time_unit : str
-
-    Returns
-    -------
-    str
-        With a hand window: what happened to the point, and that the window
-        was kept.  In automatic mode: :func:`rerun_message` (which points the
-        search chose).
-    """
-    if window is None:
-        return rerun_message(t, before, after, time_unit)
-    what = {"fit": "left out", "excluded": "taken back", "other": "brought into the fit"}[role]
-    return (f"{times_text([t], time_unit)} {what}; window {_fmt(window[0])} to {_fmt(window[1])} kept "
-            f"({len(after)} points in the fit)")
 
 
 def record_steps(previous, fingerprint, window, excluded):

@@ -59,6 +59,27 @@ class TerminalPhasePicker(widgets.VBox):
                  title=None, author=None, units=None, **options):
         self.record = record
         self.author = author
+        self._build_figure(title)
+        self._build_controls()
+        super().__init__([
+            widgets.HBox([self._mode, self._scale, self._auto], layout=widgets.Layout(flex_flow="row wrap")),
+            # in a narrow output area (JupyterLab with its side bar) the readout moves below the figure
+            widgets.HBox([widgets.VBox([self.figure, self.legend],
+                                       layout=widgets.Layout(width="630px", flex="0 0 auto")),
+                          widgets.VBox([self.readout, self._residuals.figure],
+                                       layout=widgets.Layout(width="430px", flex="0 0 auto"))],
+                         layout=widgets.Layout(flex_flow="row wrap")),
+            widgets.HBox([self._reason, self._save]),
+        ])
+        self.add_class("pkw-picker")
+        self.observe(self._recompute, names=["window", "excluded", "auc_method", "blq_rules"])
+        self.observe(self._scale_changed, names=["log_scale"])
+        self.observe(self._redraw_readout, names=["status"])
+        self.load(time, conc, blq=blq, lloq=lloq, key=key, window=window, excluded=excluded, title=title,
+                  units=units, **options)
+
+    def _build_figure(self, title):
+        """The main figure (points by role, fitted line and its continuation, brush), legend, residual plot."""
         self._xs = bq.LinearScale(allow_padding=False)  # limits from _axes.x_range
         self._ys = {True: bq.LogScale(), False: bq.LinearScale()}
         ys = self._ys[True]
@@ -91,7 +112,11 @@ class TerminalPhasePicker(widgets.VBox):
             layout=widgets.Layout(width="620px", height="400px"),
         )
         self.legend = widgets.HTML(V.legend_html(), layout=widgets.Layout(width="560px", margin="0 0 0 60px"))
+        self.legend.add_class("pkw-legend-box")
         self._residuals = _ResidualPlot()
+
+    def _build_controls(self):
+        """Mode and scale toggles, back-to-automatic, reason and save, readout."""
         self._mode = widgets.ToggleButtons(
             options=[("click points", "click"), ("drag a window", "brush")], value="click",
             tooltips=["click a point: leave it out / take it back / bring it into the fit",
@@ -101,7 +126,8 @@ class TerminalPhasePicker(widgets.VBox):
         self._scale = widgets.ToggleButtons(options=[("log scale", True), ("linear scale", False)], value=True,
                                             style={"button_width": "105px"})
         traitlets.link((self._scale, "value"), (self, "log_scale"))
-        self._auto = widgets.Button(description="back to automatic", icon="undo", layout=widgets.Layout(width="170px"),
+        self._auto = widgets.Button(description="back to automatic", icon="undo",
+                                    layout=widgets.Layout(width="170px"),
                                     tooltip="automatic terminal-phase search, nothing left out")
         self._auto.on_click(self._to_automatic)
         self._reason = widgets.Text(placeholder="why this choice (required to save)",
@@ -109,22 +135,6 @@ class TerminalPhasePicker(widgets.VBox):
         self._save = widgets.Button(description="record choice", icon="save", button_style="primary")
         self._save.on_click(self._save_clicked)
         self.readout = widgets.HTML(layout=widgets.Layout(width="430px"))
-        super().__init__([
-            widgets.HBox([self._mode, self._scale, self._auto], layout=widgets.Layout(flex_flow="row wrap")),
-            # in a narrow output area (JupyterLab with its side bar) the readout moves below the figure
-            widgets.HBox([widgets.VBox([self.figure, self.legend],
-                                       layout=widgets.Layout(width="630px", flex="0 0 auto")),
-                          widgets.VBox([self.readout, self._residuals.figure],
-                                       layout=widgets.Layout(width="430px", flex="0 0 auto"))],
-                         layout=widgets.Layout(flex_flow="row wrap")),
-            widgets.HBox([self._reason, self._save]),
-        ])
-        self.add_class("pkw-picker")
-        self.observe(self._recompute, names=["window", "excluded", "auc_method", "blq_rules"])
-        self.observe(self._scale_changed, names=["log_scale"])
-        self.observe(self._redraw_readout, names=["status"])
-        self.load(time, conc, blq=blq, lloq=lloq, key=key, window=window, excluded=excluded, title=title,
-                  units=units, **options)
 
     # ------------------------------------------------------------------ data
     def load(self, time, conc, *, blq=None, lloq=None, key=None, window=None, excluded=(), title=None,
