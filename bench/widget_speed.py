@@ -94,7 +94,7 @@ def record_scaling(sizes=(5_000, 50_000), repeats=3):
 CLICK_JS = """
 async () => {
   const root = document.querySelector('.pkw-picker');
-  const dots = Array.from(root.querySelectorAll('.bqplot svg .dot'));
+  const dots = Array.from(root.querySelector('.bqplot').querySelectorAll('svg .dot'));  // main figure only
   const fill = e => getComputedStyle(e).fill.replace(/ /g, '');
   const excl = dots.filter(e => fill(e) === 'rgb(213,94,0)');
   const fit = dots.filter(e => fill(e) === 'rgb(0,114,178)');

@@ -36,13 +36,13 @@ def _wait_port(port, proc, log_path, timeout):
     end = time.monotonic() + timeout
     while time.monotonic() < end:
         if proc.poll() is not None:
-            raise RuntimeError(f"voila exited early with code {proc.returncode}; see {log_path}")
+            raise RuntimeError(f"the server exited early with code {proc.returncode}; see {log_path}")
         try:
             with socket.create_connection(("127.0.0.1", port), timeout=0.5):
                 return
         except OSError:
             time.sleep(0.2)
-    raise RuntimeError(f"voila did not open port {port} within {timeout} s; see {log_path}")
+    raise RuntimeError(f"the server did not open port {port} within {timeout} s; see {log_path}")
 
 
 @contextlib.contextmanager

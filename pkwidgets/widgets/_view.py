@@ -20,11 +20,15 @@ import numpy as np
 
 from ..engine import nca_arrays
 from ..qc import FLAGS, QCThresholds, flag_message
+from ._axes import legend_html as _legend_html
+from ._axes import log_ticks, unit_labels, with_unit, x_range
+from ._fit_view import bounds_text, click_status, fit_bounds, fit_residuals  # noqa: F401 (click_status: API)
 
 __all__ = [
     "ROLE_STYLE", "PointView", "ProfileView", "compute_profile", "profile_view", "toggle_time",
-    "window_from_brush", "readout_rows", "readout_html", "flag_words", "overview_svg",
-    "needs_review", "key_label", "choice_summary", "fit_interval", "click_action", "record_steps",
+    "window_from_brush", "readout_rows", "readout_html", "flag_words",
+    "needs_review", "key_label", "choice_summary", "fit_interval", "click_action", "click_status", "record_steps",
+    "legend_html",
 ]
 
 #: Okabe–Ito colours (hex as published) with a marker shape and a legend word per role.
@@ -36,8 +40,6 @@ ROLE_STYLE = {
 }
 LINE_COLOUR = "#009E73"
 REVIEW_COLOUR = "#E69F00"
-#: How far the dashed tail is drawn beyond the last measurable time, in half-lives.
-TAIL_HALF_LIVES = 3.0
 
 
 @dataclass
@@ -52,6 +54,10 @@ class ProfileView:
     window: tuple | None
     readout: list = field(default_factory=list)
     flags: list = field(default_factory=list)
+    x_range: tuple = (0.0, 1.0)  # time-axis limits: the samples, not the tail
+    y_range: tuple = (None, None)  # log-axis limits at ticks (None on a linear axis: automatic)
+    y_ticks: list = field(default_factory=list)  # log-axis ticks (empty on a linear axis)
+    residuals: tuple = (np.array([]), np.array([]))  # (t, ln C - fitted ln C) of the fit points
 
 
 PointView = dict
@@ -96,7 +102,7 @@ def _plot_conc(conc, blq, lloq, positive_floor):
 
 
 def profile_view(time, conc, result, *, blq=None, lloq=None, excluded=(), window=None, log_scale=True,
-                 qc=None):
+                 qc=None, units=None):
     r"""Map one profile's engine result to drawable arrays and readout text.
 
     Roles: ``fit`` (used in the lambda-z fit), ``excluded`` (left out by
@@ -105,8 +111,11 @@ def profile_view(time, conc, result, *, blq=None, lloq=None, excluded=(), window
     cannot be drawn and are left out of ``other`` (they still count in the
     AUC).  The fitted line runs over the fit interval,
     :math:`\hat C(t) = e^{a - \lambda_z t}`; the dashed tail continues it
-    from TLST for ``TAIL_HALF_LIVES`` half-lives to suggest the area out to
-    infinity (:math:`C_{last}/\lambda_z`).
+    from TLST to the right edge of the time axis, which covers the samples
+    only (:func:`pkwidgets.widgets._axes.x_range`), to suggest the area out to
+    infinity (:math:`C_{last}/\lambda_z`).  On a log axis the y limits and
+    ticks come from :func:`pkwidgets.widgets._axes.log_ticks`.  ``units`` are
+    the study's units (:func:`pkwidgets.widgets._axes.unit_labels`).
     """
     t = np.asarray(time, dtype=np.float64)
     c = np.asarray(conc, dtype=np.float64)
@@ -128,22 +137,29 @@ def profile_view(time, conc, result, *, blq=None, lloq=None, excluded=(), window
     roles["other"] = drawable & ~roles["fit"] & ~roles["excluded"] & ~roles["blq"]
     points = {r: {"x": t[m], "y": y[m], "index": np.flatnonzero(m)} for r, m in roles.items()}
 
+    xr = x_range(t[present])
+    fit_x, fit_y, tail_x, tail_y = _fit_lines(result, xr[1])
+    y_lo, y_hi, ticks = log_ticks(np.concatenate([y[drawable], fit_y])) if log_scale else (None, None, [])
+    flags = [name for name in FLAGS if bool(result.flags[name][0])]
+    readout = readout_rows(result, unit_labels(units), fit_bounds(t, c, result))
+    return ProfileView(points=points, fit_x=fit_x, fit_y=fit_y, tail_x=tail_x, tail_y=tail_y,
+                       window=window, readout=readout, flags=flag_words(flags, qc), x_range=xr,
+                       y_range=(y_lo, y_hi), y_ticks=ticks, residuals=fit_residuals(t, c, result))
+
+
+def _fit_lines(result, x_edge):
+    """(fit_x, fit_y, tail_x, tail_y): the fitted line over the fit interval, the tail from TLST to ``x_edge``."""
     lamz = float(result["LAMZ"][0])
     lo, hi = float(result["LAMZLL"][0]), float(result["LAMZUL"][0])
     empty = np.array([])
-    fit_x = fit_y = tail_x = tail_y = empty
-    if math.isfinite(lamz) and lamz > 0:
-        # intercept a from CLSTP = exp(a - lamz * TLST)
-        tlst = float(result["TLST"][0])
-        clstp = float(result["CLSTP"][0])
-        a = math.log(clstp) + lamz * tlst
-        fit_x = np.linspace(lo, hi, 24)
-        fit_y = np.exp(a - lamz * fit_x)
-        tail_x = np.linspace(tlst, tlst + TAIL_HALF_LIVES * math.log(2.0) / lamz, 24)
-        tail_y = np.exp(a - lamz * tail_x)
-    flags = [name for name in FLAGS if bool(result.flags[name][0])]
-    return ProfileView(points=points, fit_x=fit_x, fit_y=fit_y, tail_x=tail_x, tail_y=tail_y,
-                       window=window, readout=readout_rows(result), flags=flag_words(flags, qc))
+    if not (math.isfinite(lamz) and lamz > 0):
+        return empty, empty, empty, empty
+    # intercept a from CLSTP = exp(a - lamz * TLST)
+    tlst = float(result["TLST"][0])
+    a = math.log(float(result["CLSTP"][0])) + lamz * tlst
+    fit_x = np.linspace(lo, hi, 24)
+    tail_x = np.linspace(tlst, x_edge, 24) if x_edge > tlst else empty
+    return fit_x, np.exp(a - lamz * fit_x), tail_x, np.exp(a - lamz * tail_x)
 
 
 def _fmt(x, digits=4):
@@ -153,21 +169,28 @@ def _fmt(x, digits=4):
     return f"{x:.{digits}g}"
 
 
-def readout_rows(result):
-    """(label, value text) pairs of the live readout for a one-profile result."""
+def readout_rows(result, units=None, bounds=None):
+    """(label, value text) pairs of the live readout for a one-profile result.
+
+    ``units``: :func:`pkwidgets.widgets._axes.unit_labels` (default: no
+    units, said in words); ``bounds``: :func:`pkwidgets.widgets._fit_view.fit_bounds`
+    (rows "95 % bounds" under λz, t½ and AUCIFO; left out when None).
+    """
+    u = units or unit_labels(None)
     g = {k: float(result[k][0]) for k in ("LAMZ", "LAMZHL", "R2ADJ", "LAMZNPT", "LAMZSPN", "LAMZLL",
                                            "LAMZUL", "AUCIFO", "AUCPEO", "AUCLST")}
     n = g["LAMZNPT"]
     window = "—" if not math.isfinite(g["LAMZLL"]) else f"{_fmt(g['LAMZLL'])} to {_fmt(g['LAMZUL'])}"
+    ci = (lambda code: [("  95 % bounds", bounds_text(bounds, code))]) if bounds else (lambda code: [])
     return [
-        ("λz (1/time)", _fmt(g["LAMZ"])),
-        ("half-life", _fmt(g["LAMZHL"])),
+        (with_unit("λz", u["LAMZ"]), _fmt(g["LAMZ"])), *ci("LAMZ"),
+        (with_unit("t½", u["LAMZHL"]), _fmt(g["LAMZHL"])), *ci("LAMZHL"),
         ("adjusted R²", "—" if not math.isfinite(g["R2ADJ"]) else f"{g['R2ADJ']:.4f}"),
         ("points in fit", str(int(n)) if math.isfinite(n) else "0"),
-        ("fit from … to", window),
+        (with_unit("fit from … to", u["time"]), window),
         ("span (half-lives)", _fmt(g["LAMZSPN"], 3)),
-        ("AUC to last", _fmt(g["AUCLST"])),
-        ("AUC to ∞ (AUCIFO)", _fmt(g["AUCIFO"])),
+        (with_unit("AUCLST", u["AUCLST"]), _fmt(g["AUCLST"])),
+        (with_unit("AUCIFO", u["AUCIFO"]), _fmt(g["AUCIFO"])), *ci("AUCIFO"),
         ("extrapolated share", "—" if not math.isfinite(g["AUCPEO"]) else f"{g['AUCPEO']:.1f} %"),
     ]
 
@@ -179,11 +202,20 @@ def flag_words(names, qc=None):
     return sorted(items, key=lambda it: it[0] != "review")
 
 
+def _indent(label):
+    """Left padding of a readout label: labels given with leading spaces (sub-rows) are indented."""
+    return "1.2em" if label.startswith(" ") else "0"
+
+
 def readout_html(rows, flags, status=""):
-    """HTML of the readout: a two-column table, then the flags as a list, then a status line."""
+    """HTML of the readout: a two-column table, then the flags as a list, then a status line.
+
+    A label starting with spaces (the "95 % bounds" under a value) is drawn indented.
+    """
     cells = "".join(
-        f"<tr><th style='text-align:left;font-weight:normal;padding-right:1em'>{html.escape(k)}</th>"
-        f"<td class='pkw-value' style='text-align:right;font-variant-numeric:tabular-nums'>{html.escape(v)}</td></tr>"
+        f"<tr><th style='text-align:left;font-weight:normal;padding:1px 1em 1px {_indent(k)};white-space:nowrap'>"
+        f"{html.escape(k.strip())}</th><td class='pkw-value' style='text-align:right;padding:1px 0;"
+        f"font-variant-numeric:tabular-nums'>{html.escape(v)}</td></tr>"
         for k, v in rows)
     if flags:
         lis = "".join(
@@ -193,7 +225,8 @@ def readout_html(rows, flags, status=""):
     else:
         fl = "<p class='pkw-flags' style='margin:0.3em 0'>No checks raised.</p>"
     st = f"<p class='pkw-status' style='margin:0.3em 0'>{html.escape(status)}</p>" if status else ""
-    return f"<div class='pkw-readout'><table>{cells}</table>{fl}{st}</div>"
+    return (f"<div class='pkw-readout' style='line-height:1.4'><table style='border-collapse:collapse'>{cells}"
+            f"</table>{fl}{st}</div>")
 
 
 def toggle_time(excluded, t):
@@ -236,51 +269,6 @@ def choice_summary(window, excluded):
     if excluded:
         parts.append("left out: " + ", ".join(_fmt(x) for x in excluded))
     return "; ".join(parts)
-
-
-def overview_svg(labels, times, concs, used, review, current=None, *, columns=8, cell=(92, 62)):
-    """Small multiples of every profile as one inline SVG (semi-log sparklines).
-
-    A profile needing review gets a thick dashed orange frame and a "!"
-    badge (never colour alone); the current profile a thick black frame.
-    Fit points are filled blue circles, the others small grey dots.
-    """
-    w, h = cell
-    n = len(labels)
-    rows = max(1, math.ceil(n / columns))
-    out = [f"<svg xmlns='http://www.w3.org/2000/svg' width='{columns * w}' height='{rows * h}' "
-           f"role='img' aria-label='overview of all profiles' style='font:10px sans-serif'>"]
-    for i in range(n):
-        x0, y0 = (i % columns) * w, (i // columns) * h
-        t = np.asarray(times[i], dtype=np.float64)
-        c = np.asarray(concs[i], dtype=np.float64)
-        ok = np.isfinite(t) & np.isfinite(c) & (c > 0)
-        frame_style = "stroke:#000;stroke-width:1"
-        if review[i]:
-            frame_style = f"stroke:{REVIEW_COLOUR};stroke-width:3;stroke-dasharray:5,3"
-        if current is not None and i == current:
-            frame_style = "stroke:#000;stroke-width:3"
-        out.append(f"<g transform='translate({x0},{y0})'><title>{html.escape(labels[i])}"
-                   f"{' — needs review' if review[i] else ''}</title>")
-        out.append(f"<rect x='2' y='2' width='{w - 4}' height='{h - 4}' fill='#fff' style='{frame_style}'/>")
-        if ok.sum() >= 1:
-            tt, lc = t[ok], np.log(c[ok])
-            tspan = max(float(np.ptp(tt)), 1e-12)
-            cspan = max(float(np.ptp(lc)), 1e-12)
-            px = 8 + (tt - tt.min()) / tspan * (w - 16)
-            py = (h - 8) - (lc - lc.min()) / cspan * (h - 26)
-            pts = " ".join(f"{a:.1f},{b:.1f}" for a, b in zip(px, py))
-            out.append(f"<polyline points='{pts}' fill='none' stroke='#999' stroke-width='1'/>")
-            u = np.asarray(used[i], dtype=bool)[ok]
-            for a, b, inu in zip(px, py, u):
-                if inu:
-                    out.append(f"<circle cx='{a:.1f}' cy='{b:.1f}' r='2.5' fill='{ROLE_STYLE['fit']['colour']}'/>")
-                else:
-                    out.append(f"<circle cx='{a:.1f}' cy='{b:.1f}' r='1.5' fill='#777'/>")
-        label = html.escape(labels[i]) + (" !" if review[i] else "")
-        out.append(f"<text x='6' y='13'>{label}</text></g>")
-    out.append("</svg>")
-    return "".join(out)
 
 
 def fit_interval(result):
@@ -372,3 +360,11 @@ def record_steps(previous, fingerprint, window, excluded):
     if excluded != prev_excl:
         steps.append(("exclude", excluded))
     return steps
+
+
+def legend_html():
+    """The picker's legend (every point role and both lines), drawn beside the figure, outside the data."""
+    roles = [(ROLE_STYLE[r]["marker"], ROLE_STYLE[r]["colour"], ROLE_STYLE[r]["label"])
+             for r in ("fit", "other", "excluded", "blq")]
+    return _legend_html(roles + [("line", LINE_COLOUR, "λz fit"),
+                                 ("dashed", LINE_COLOUR, "fit continued past the last sample")])

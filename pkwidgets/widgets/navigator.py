@@ -8,6 +8,8 @@ that the overview and the review filter stay true.
 
 from __future__ import annotations
 
+import re
+
 import ipywidgets as widgets
 import numpy as np
 import traitlets
@@ -15,11 +17,12 @@ import traitlets
 from ..record import SelectionRecord, canonical_key, coerce_record
 from ..table import nca
 from . import _view as V
+from .overview import ProfileOverview
 from .picker import TerminalPhasePicker
 from .toggles import MethodToggles
 
 __all__ = ["StudyNavigator", "TABLE_ONLY_OPTIONS", "profile_options", "flags_by_profile", "count_text",
-           "review_order", "step", "jump_options", "recorded_choice"]
+           "review_order", "step", "jump_options", "recorded_choice", "natural_key", "natural_order"]
 
 #: nca() keywords that describe the table, not the computation of one profile.
 TABLE_ONLY_OPTIONS = ("time", "conc", "dose", "blq", "lloq", "dose_time", "units", "terminal", "exclude",
@@ -34,6 +37,31 @@ def profile_options(nca_options, profile):
         if value is not None and not np.isnan(value):
             opts[name] = value
     return opts
+
+
+def natural_key(value):
+    """Sort key that orders numbers by value and text by its runs of digits ("S2" < "S10").
+
+    Numbers (the table layer reads numeric-looking IDs as numbers) sort before
+    text; text is split into digit and non-digit runs, digits compared as
+    integers, letters without regard to case.
+
+    Examples
+    --------
+    >>> sorted(["S10", "S2", "s1"], key=natural_key)
+    ['s1', 'S2', 'S10']
+    >>> sorted([10, 2, 1], key=natural_key)
+    [1, 2, 10]
+    """
+    if isinstance(value, (int, float, np.integer, np.floating)) and not isinstance(value, bool):
+        return (0, float(value), ())
+    parts = re.split(r"(\d+)", str(value))
+    return (1, 0.0, tuple((0, int(p), "") if p.isdigit() else (1, 0, p.casefold()) for p in parts if p))
+
+
+def natural_order(keys):
+    """Positions of ``keys`` (tuples of key values) in natural order (:func:`natural_key`, column by column)."""
+    return sorted(range(len(keys)), key=lambda i: tuple(natural_key(v) for v in keys[i]))
 
 
 def flags_by_profile(flags, profile_ids):
@@ -113,7 +141,7 @@ class StudyNavigator(widgets.VBox):
         ``route=``, ``auc_method=``...).
     """
 
-    index = traitlets.Int(0, help="position of the profile shown (row of the study table)")
+    index = traitlets.Int(0, help="position of the profile shown, in natural order of the profile keys")
     only_review = traitlets.Bool(False, help="step only through profiles that need review")
 
     def __init__(self, data, *, by, selections=None, author=None, **nca_options):
@@ -132,7 +160,8 @@ class StudyNavigator(widgets.VBox):
                                       description="go to", layout=widgets.Layout(width="260px"))
         self._only = widgets.Checkbox(value=False, description="only profiles needing review", indent=False)
         self._count = widgets.HTML()
-        self.overview = widgets.HTML(layout=widgets.Layout(overflow="auto"))
+        self.overview = ProfileOverview()
+        traitlets.link((self.overview, "index"), (self, "index"))
         self._prev.on_click(lambda _: self._step(-1))
         self._next.on_click(lambda _: self._step(+1))
         traitlets.link((self._jump, "value"), (self, "index"))
@@ -141,7 +170,8 @@ class StudyNavigator(widgets.VBox):
             widgets.HBox([self._prev, self._next, self._jump, self._only, self._count]),
             self.toggles,
             self.picker,
-            widgets.HTML("<b>All profiles</b> (dashed orange frame and “!”: needs review; thick black frame: shown)"),
+            widgets.HTML("<b>All profiles</b> (click one to show it; dashed orange frame and “!”: needs review; "
+                         "thick black frame: shown)"),
             self.overview,
         ])
         self.add_class("pkw-navigator")
@@ -155,8 +185,11 @@ class StudyNavigator(widgets.VBox):
     def _run(self):
         opts = dict(self._nca_options, **self.toggles.options)
         self.result = nca(self._data, by=self.by, selections=self.record, **opts)
-        self.profile_ids = [int(p) for p in self.result.parameters["profile_id"]]
-        self.profiles = [self.result.profile(profile_id=p) for p in self.profile_ids]
+        ids = [int(p) for p in self.result.parameters["profile_id"]]
+        profiles = [self.result.profile(profile_id=p) for p in ids]
+        order = natural_order([tuple(p.key.values()) for p in profiles])
+        self.profile_ids = [ids[i] for i in order]
+        self.profiles = [profiles[i] for i in order]
         self.profile_keys = [canonical_key(tuple(p.key.values())) for p in self.profiles]
         self.flag_names = flags_by_profile(self.result.flags, self.profile_ids)
         self.review = [V.needs_review(n) for n in self.flag_names]
@@ -170,15 +203,15 @@ class StudyNavigator(widgets.VBox):
                                                    self.result.settings["selections"]["fingerprints"][row])
         self.picker.load(prof.time, prof.conc, blq=prof.blq, lloq=prof.lloq,
                          key=self.profile_keys[p], window=window, excluded=excluded, title=self.labels[p],
-                         status=status, **profile_options(dict(self._nca_options, **self.toggles.options), prof))
+                         status=status, units=self.result.settings.get("units"),
+                         **profile_options(dict(self._nca_options, **self.toggles.options), prof))
         self._render_overview()
 
     def _render_overview(self):
         order = review_order(self.review, self.only_review)
         self._count.value = count_text(len(order), len(self.profile_keys), self.review)
-        self.overview.value = V.overview_svg(self.labels, [p.time for p in self.profiles],
-                                             [p.conc for p in self.profiles],
-                                             [p.lambda_z_used for p in self.profiles], self.review, current=self.index)
+        self.overview.show(self.labels, [p.time for p in self.profiles], [p.conc for p in self.profiles],
+                           [p.lambda_z_used for p in self.profiles], self.review, current=self.index)
 
     def _step(self, delta):
         self.index = step(review_order(self.review, self.only_review), self.index, delta)
