@@ -4,8 +4,10 @@ Every profile's areas start at dose time (t = 0).  Where no usable sample
 stands there, one is added:
 
 - extravascular or infusion, single dose: 0;
-- steady state (a dosing interval tau): the latest pre-dose sample (taken
-  before dose time) stands at dose time; without one, CMIN of the interval;
+- with a dosing interval tau: the latest pre-dose sample taken within
+  ``predose_window`` x tau before dose time stands at dose time; without one,
+  CMIN of the interval, or 0 when the interval follows the first dose
+  (``first_dose``: nothing was given before it);
 - IV bolus: C0, back-extrapolated log-linearly from the first two post-dose
   samples when they decline, else the first observed concentration; a sample
   at dose time is then a pre-dose sample and is not used.
@@ -46,7 +48,7 @@ def pick(a, idx):
 
 
 def anchor_at_dose_time(samples: ChunkSamples, classified: ClassifiedSamples, tau, route, rules,
-                        predose_window=0.1) -> DoseTimePoint:
+                        predose_window=0.1, first_dose=None) -> DoseTimePoint:
     """Find or add the point at dose time; updates ``classified.status`` of the samples it uses or drops.
 
     At steady state only a pre-dose sample taken at most ``predose_window`` x
@@ -72,14 +74,17 @@ def anchor_at_dose_time(samples: ChunkSamples, classified: ClassifiedSamples, ta
         c0, declining = _bolus_c0(t.T, value.T, usable.T)
         flags = {"c0_extrapolated": declining, "c0_first_observed": ~declining & ~np.isnan(c0)}
         return DoseTimePoint(c0, np.ones(t.shape[1], dtype=bool), trough, cmin_tau, usable, flags)
+    first = np.zeros(t.shape[1], dtype=bool) if first_dose is None else first_dose
     is_ss = ~np.isnan(tau)
     need0 = ~has0
-    # steady state: the pre-dose sample stands at dose time, else CMIN of the interval
+    # with tau: the pre-dose sample stands at dose time; else CMIN of the interval, or 0 after a first dose
+    # (nothing was given before it)
     shifted = need0 & is_ss & has_pre
-    c0 = np.where(is_ss, np.where(shifted, trough, cmin_tau), 0.0)
+    zero = need0 & (~is_ss | (first & ~has_pre))
+    c0 = np.where(shifted, trough, np.where(zero | ~is_ss, 0.0, cmin_tau))
     cmin_tau = np.where(shifted, np.fmin(cmin_tau, trough), cmin_tau)
-    flags = {"time0_added": need0 & ~is_ss, "predose_shifted": shifted,
-             "predose_imputed": need0 & is_ss & ~has_pre}
+    cmin_tau = np.where(zero & is_ss, 0.0, cmin_tau)
+    flags = {"time0_added": zero, "predose_shifted": shifted, "predose_imputed": need0 & is_ss & ~has_pre & ~first}
     cols = np.flatnonzero(shifted)
     classified.status[i_pre[cols], cols] = SampleStatus.USED
     return DoseTimePoint(c0, need0, trough, cmin_tau, usable, flags)

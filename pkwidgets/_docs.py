@@ -42,7 +42,12 @@ PARTS = {
     qc : QCThresholds, optional
     lambda_z_rule : str, optional
         Automatic terminal-phase rule (:data:`pkwidgets.options.LAMBDA_Z_RULES`);
-        default ``"tail-extension"``, this project's rule.""",
+        default ``"tail-extension"``, this project's rule.
+    first_dose : array_like of bool (profiles,), optional
+        With ``tau``: True where the interval follows the first dose, so nothing
+        was given before it; without a sample at dose time its concentration
+        there is 0 (extravascular or infusion, flag ``time0_added``) instead of
+        CMIN of the interval.  :func:`pkwidgets.nca` sets it from ``occasion``.""",
 }
 
 

@@ -30,14 +30,16 @@ class ProfileArrays:
     window_start: np.ndarray    # (profiles,)
     window_end: np.ndarray      # (profiles,)
     partial: list               # [(name, start (profiles,), end (profiles,))]
+    first_dose: np.ndarray = None  # bool (profiles,): the interval follows the first dose (nothing before it)
 
     def rows(self, sl: slice) -> "ProfileArrays":
         """The profiles in ``sl`` (a chunk)."""
-        cut = {f.name: getattr(self, f.name)[sl] for f in fields(self) if f.name != "partial"}
+        cut = {f.name: getattr(self, f.name)[sl] for f in fields(self) if f.name not in ("partial", "first_dose")}
+        cut["first_dose"] = None if self.first_dose is None else self.first_dose[sl]
         return ProfileArrays(**cut, partial=[(n, a[sl], b[sl]) for n, a, b in self.partial])
 
 
-def prepare_inputs(time, conc, options, *, dose, duration, tau, exclude, blq, lloq) -> ProfileArrays:
+def prepare_inputs(time, conc, options, *, dose, duration, tau, exclude, blq, lloq, first_dose=None) -> ProfileArrays:
     """Check and broadcast the arguments of :func:`pkwidgets.nca_arrays`.
 
     ``duration`` and ``tau`` are per-profile arrays or None (then the scalar of
@@ -61,7 +63,8 @@ def prepare_inputs(time, conc, options, *, dose, duration, tau, exclude, blq, ll
     tau_a = per_profile(options.tau if tau is None else tau, P, "tau", positive=True)
     lo, hi = parse_terminal(options.terminal, P)
     parts = parse_partial(options.partial, P)
-    return ProfileArrays(t, c, blq_a, lloq_a, excl, dose_a, dur, tau_a, lo, hi, parts)
+    first = np.zeros(P, dtype=bool) if first_dose is None else np.broadcast_to(np.asarray(first_dose, bool), (P,))
+    return ProfileArrays(t, c, blq_a, lloq_a, excl, dose_a, dur, tau_a, lo, hi, parts, first)
 
 
 def as_2d(a, name):

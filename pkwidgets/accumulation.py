@@ -17,7 +17,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-__all__ = ["accumulation_ratios"]
+__all__ = ["accumulation_ratios", "first_occasion"]
 
 
 def accumulation_ratios(params, keys: pd.DataFrame, by, occasion, tau_p) -> dict:
@@ -40,6 +40,21 @@ def accumulation_ratios(params, keys: pd.DataFrame, by, occasion, tau_p) -> dict
     -------
     dict with ``ARAUC`` and ``ARCMAX`` arrays (NaN for first occasions).
     """
+    ref = first_occasion(keys, by, occasion, tau_p)
+    later = ref != np.arange(len(keys))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return {
+            "ARAUC": np.where(later, params["AUCTAU"] / params["AUCTAU"][ref], np.nan),
+            "ARCMAX": np.where(later, params["CMAX"] / params["CMAX"][ref], np.nan),
+        }
+
+
+def first_occasion(keys: pd.DataFrame, by, occasion, tau_p) -> np.ndarray:
+    """For each profile, the position of the first occasion with the same other keys and tau.
+
+    A profile whose position is its own is a first occasion (taken as the
+    first dose: nothing was given before it).
+    """
     if occasion not in by:
         raise ValueError(f"The 'occasion' option must be one of the by columns {by}; got {occasion!r}.")
     if tau_p is None:
@@ -54,9 +69,4 @@ def accumulation_ratios(params, keys: pd.DataFrame, by, occasion, tau_p) -> dict
     first_pos = frame.loc[group[occasion].idxmin(), "__pos__"].to_numpy()
     ref = np.full(P, -1)
     ref[frame["__pos__"].to_numpy()] = first_pos[group.ngroup().to_numpy()]
-    later = ref != np.arange(P)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        return {
-            "ARAUC": np.where(later, params["AUCTAU"] / params["AUCTAU"][ref], np.nan),
-            "ARCMAX": np.where(later, params["CMAX"] / params["CMAX"][ref], np.nan),
-        }
+    return ref

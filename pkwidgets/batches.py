@@ -57,7 +57,9 @@ def _one_batch(pad, flat, ids, per_profile, terminal, options, key_texts, record
                                   arrays["blq"], arrays["exclude"], term, lloq=arrays["lloq"],
                                   blq_rules=options.blq_rules, auc_method=options.auc_method)
         term, arrays["exclude"] = replay[0], replay[1]
+    first = per_profile.get("first_dose")
     res = nca_arrays(arrays["time"], arrays["conc"], dose=_take(per_profile["dose"], ids), route=options.route,
+                     first_dose=None if first is None else first[ids],
                      duration=_take(per_profile["duration"], ids), tau=_take(per_profile["tau"], ids),
                      auc_method=options.auc_method, terminal=term, exclude=arrays["exclude"], blq=arrays["blq"],
                      lloq=arrays["lloq"], partial=_partial_for(options.partial, ids), blq_rules=options.blq_rules,

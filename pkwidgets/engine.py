@@ -119,7 +119,7 @@ class ChunkResult(NamedTuple):
 @fill_doc
 def nca_arrays(time, conc, *, options=None, dose=None, route="extravascular", duration=None, tau=None,
                auc_method="linear", terminal="auto", exclude=None, blq=None, lloq=None, partial=(),
-               blq_rules=None, qc=None, lambda_z_rule=None):
+               blq_rules=None, qc=None, lambda_z_rule=None, first_dose=None):
     r"""Non-compartmental parameters of many profiles at once (stages: see the module docstring).
 
     Parameters
@@ -163,7 +163,7 @@ def nca_arrays(time, conc, *, options=None, dose=None, route="extravascular", du
                          tau=_scalar(tau), terminal=terminal, partial=partial, blq_rules=blq_rules, qc=qc,
                          lambda_z_rule=lambda_z_rule)
     arrays = prepare_inputs(time, conc, opts, dose=dose, duration=_per_profile(duration), tau=_per_profile(tau),
-                            exclude=exclude, blq=blq, lloq=lloq)
+                            exclude=exclude, blq=blq, lloq=lloq, first_dose=first_dose)
     plan = _plan(opts, arrays)
 
     def run(s):
@@ -216,7 +216,8 @@ def _chunk(arrays: ProfileArrays, plan: _Plan) -> ChunkResult:
     route = options.route
     samples = ChunkSamples.from_profiles(arrays)
     classified = classify_samples(samples, options.blq_rules)
-    anchor = anchor_at_dose_time(samples, classified, tau, route, options.blq_rules, options.predose_window)
+    anchor = anchor_at_dose_time(samples, classified, tau, route, options.blq_rules, options.predose_window,
+                                 arrays.first_dose)
     ordered = sort_samples(samples, classified, anchor)
     exposure = measure_exposure(ordered, classified.measured, tau, route, options.auc_method)
     terminal = fit_terminal_phase(ordered, exposure, arrays.window_start, arrays.window_end, route,

@@ -17,7 +17,7 @@ import numpy as np
 import pandas as pd
 
 from ._dask import is_dask_frame, nca_dask
-from .accumulation import accumulation_ratios
+from .accumulation import accumulation_ratios, first_occasion
 from .columns import TableSource, terminal_windows
 from .batches import run_batches
 from .engine import SampleValueError
@@ -107,7 +107,9 @@ def nca(data, *, by, options=None, columns=None, time="time", conc="conc", dose=
         Start a new, empty record when ``selections`` names no file yet.
     occasion : str, optional
         A ``by`` column ordering dosing occasions; with ``tau`` each later
-        occasion gets ARAUC and ARCMAX against the first one.
+        occasion gets ARAUC and ARCMAX against the first one, and the first
+        occasion is taken as the first dose: without a sample at dose time its
+        concentration there is 0 (flag ``time0_added``), not CMIN.
     sep, decimal, encoding
         CSV reading options when ``data`` is a path.
 
@@ -251,6 +253,10 @@ def _per_profile_values(src: TableSource, spec: StudySpec, prof, keys, decimal) 
         out[role] = src.per_profile(value, prof, P, role, decimal) if value is not None else None
     if cols.dose is not None:
         src.check_doses(cols.dose, out["dose"], prof, keys)
+    tau = out["tau"] if out["tau"] is not None else spec.options.tau
+    out["first_dose"] = None
+    if spec.options.occasion is not None and tau is not None:  # the first occasion follows the first dose
+        out["first_dose"] = first_occasion(keys, list(spec.by), spec.options.occasion, tau) == np.arange(P)
     return out
 
 

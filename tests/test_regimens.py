@@ -288,3 +288,24 @@ def test_steady_state_predose_sample_only_within_the_window():
     assert late["CMIN"] == pytest.approx(min(css(-0.5), css(t).min()), rel=1e-12)
     wide = pk.nca_profile(np.r_[-11.0, t], css(np.r_[-11.0, t]), tau=tau, options=pk.NCAOptions(predose_window=1.0))
     assert "predose_shifted" in wide.attrs["flags"]
+
+
+def test_first_occasion_has_nothing_before_its_dose():
+    # a multiple-dose study with day 1 and day 5, no sample at dose time: after the first dose the concentration
+    # at dose time is 0 for an oral dose (nothing was given before; one-compartment Bateman curve, Gibaldi &
+    # Perrier, from memory), so CMIN of day 1 is 0 and AUCTAU is the single-dose area over [0, tau], here the
+    # linear trapezoid from (0, 0) computed with scipy; day 5 has no such knowledge (CMIN of the interval).
+    from scipy.integrate import trapezoid
+
+    tau, ka, k = 12.0, 1.5, 0.12
+    t = np.array([0.5, 1, 2, 4, 6, 8, 12.0])
+    day1 = 10 * ka / (ka - k) * (np.exp(-k * t) - np.exp(-ka * t))
+    rows = [dict(subject=1, day=d, time=ti, conc=ci * (1.0 if d == 1 else 1.6), dose=100)
+            for d in (1, 5) for ti, ci in zip(t, day1)]
+    res = pk.nca(pd.DataFrame(rows), by=["subject", "day"], tau=tau, occasion="day")
+    first, later = res.profile((1, 1)), res.profile((1, 5))
+    assert first.parameters["CMIN"] == 0.0
+    assert "time0_added" in set(first.flags["flag"]) and "predose_imputed" not in set(first.flags["flag"])
+    assert first.parameters["AUCTAU"] == pytest.approx(trapezoid(np.r_[0.0, day1], np.r_[0.0, t]), rel=1e-12)
+    assert later.parameters["CMIN"] == pytest.approx(1.6 * day1.min(), rel=1e-12)
+    assert "predose_imputed" in set(later.flags["flag"])
