@@ -24,6 +24,7 @@ from . import _compare_fits as fits
 from ._compare_design import (DEFAULT_LIMITS, DESIGNS, check_keys, check_options, choose_design,
                               derive_sequences, limits_per_code, require_columns, subject_sequence, treatment_roles)
 from .errors import InputDataError
+from .result import parameters_of
 
 __all__ = ["Comparison", "compare_treatments", "DESIGNS", "DEFAULT_LIMITS"]
 
@@ -282,11 +283,7 @@ def compare_treatments(params, *, subject, treatment, test, reference, period=No
     ...
     ValueError: test='A' is not a value of column 'trt'; its values are ['R', 'T']. Set test to one of them.
     """
-    if not isinstance(params, pd.DataFrame) and isinstance(getattr(params, "parameters", None), pd.DataFrame):
-        params = params.parameters  # an NCA result object: its parameter table
-    if not isinstance(params, pd.DataFrame):
-        raise TypeError("params must be a pandas DataFrame (e.g. pk.nca(...).parameters); "
-                        f"got {type(params).__name__}.")
+    params = parameters_of(params)  # an NCA result object gives its parameter table
     parameters = [parameters] if isinstance(parameters, str) else list(parameters)
     lims = limits_per_code(limits, parameters)
     check_options(level, design, lims, parameters)

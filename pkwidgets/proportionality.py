@@ -25,6 +25,7 @@ import pandas as pd
 from scipy import stats
 
 from .errors import InputDataError
+from .result import parameters_of
 
 __all__ = ["Proportionality", "dose_proportionality", "slope_criterion"]
 
@@ -189,11 +190,7 @@ def dose_proportionality(params, *, dose, parameters=("CMAX", "AUCIFO"), level=0
     ...
     pkwidgets.errors.InputDataError: column(s) ['DOSE', 'CMAX'] are not in the parameter table; its columns are ...
     """
-    if not isinstance(params, pd.DataFrame) and isinstance(getattr(params, "parameters", None), pd.DataFrame):
-        params = params.parameters  # an NCA result object: its parameter table
-    if not isinstance(params, pd.DataFrame):
-        raise TypeError("params must be a pandas DataFrame (e.g. pk.nca(...).parameters); "
-                        f"got {type(params).__name__}.")
+    params = parameters_of(params)  # an NCA result object gives its parameter table
     parameters = [parameters] if isinstance(parameters, str) else list(parameters)
     labels = [labels] if isinstance(labels, str) else list(labels or [])
     missing = [c for c in [dose, *parameters, *labels] if c not in params.columns]

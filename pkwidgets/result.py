@@ -28,7 +28,7 @@ from .exports import ResultExports
 from .long import long_table
 from .options import NCAOptions
 
-__all__ = ["NCAResult", "ProfileData", "ProfileArrays", "SAMPLE_COLUMNS"]
+__all__ = ["NCAResult", "ProfileData", "ProfileArrays", "SAMPLE_COLUMNS", "parameters_of"]
 
 #: The tool's own columns in ``NCAResult.samples`` (user columns keep their names).
 SAMPLE_COLUMNS = {"line": "nca_line", "profile": "nca_profile_id", "time": "nca_time", "used": "nca_used",
@@ -348,3 +348,19 @@ class NCAResult(ResultExports):
             return getattr(self.parameters, name)
         raise AttributeError(f"'NCAResult' has no attribute {name!r}; the tables are .parameters, .samples and "
                              ".flags.")
+
+
+def parameters_of(params) -> pd.DataFrame:
+    """The per-profile parameter table of an :class:`NCAResult`, or ``params`` itself if it is a DataFrame.
+
+    Raises
+    ------
+    TypeError
+        For anything else, saying what is expected.
+    """
+    if not isinstance(params, pd.DataFrame) and isinstance(getattr(params, "parameters", None), pd.DataFrame):
+        return params.parameters
+    if not isinstance(params, pd.DataFrame):
+        raise TypeError("params must be a pandas DataFrame (e.g. pk.nca(...).parameters); "
+                        f"got {type(params).__name__}.")
+    return params

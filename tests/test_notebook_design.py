@@ -11,16 +11,14 @@ Sources of the check values:
 
 from __future__ import annotations
 
-import ast
 import math
-import subprocess
-import sys
 from pathlib import Path
 
-import nbformat
 import numpy as np
 import pandas as pd
 import pytest
+
+from _notebooks import notebook, parameter_names, run_nbval
 
 from pkwidgets.report import CAUTION, run_analysis
 
@@ -33,21 +31,15 @@ pytestmark = [pytest.mark.notebook, pytest.mark.slow]
 
 
 def test_one_parameters_cell_and_python3_kernel():
-    nb = nbformat.read(NOTEBOOK, as_version=4)
-    assert nb.metadata["kernelspec"]["name"] == "python3"  # STACK.md: other kernelspecs fail under papermill
-    tagged = [c for c in nb.cells if "parameters" in c.metadata.get("tags", [])]
-    assert len(tagged) == 1
-    names = {t.id for node in ast.parse(tagged[0].source).body if isinstance(node, ast.Assign) for t in node.targets}
+    names = parameter_names("sampling_design")
+    nb = notebook("sampling_design")
     assert REQUIRED <= names
     assert CAUTION in nb.cells[0].source
 
 
 def test_design_notebook_reproduces_under_nbval():
     """The committed outputs (model, schedules, comparison table, flags) are reproduced cell by cell."""
-    cmd = [sys.executable, "-m", "pytest", "-q", "-p", "no:cacheprovider", "--nbval", "--nbval-current-env",
-           "--nbval-sanitize-with", str(ROOT / "nbval_sanitize.cfg"), "--nbval-cell-timeout", "120",
-           "--nbval-kernel-startup-timeout", "120", str(NOTEBOOK)]
-    r = subprocess.run(cmd, cwd=ROOT, capture_output=True, text=True, timeout=600)
+    r = run_nbval(["sampling_design"])
     assert r.returncode == 0, r.stdout[-6000:] + r.stderr[-2000:]
 
 

@@ -16,17 +16,15 @@ Sources of the check values:
 
 from __future__ import annotations
 
-import ast
 import itertools
-import subprocess
-import sys
 from pathlib import Path
 
-import nbformat
 import numpy as np
 import pandas as pd
 import pytest
 from scipy import stats
+
+from _notebooks import notebook, parameter_names, run_nbval
 
 from pkwidgets.report import CAUTION, run_analysis
 
@@ -41,21 +39,15 @@ pytestmark = [pytest.mark.notebook, pytest.mark.slow]
 
 @pytest.mark.parametrize("name", NOTEBOOKS)
 def test_notebook_has_one_parameters_cell_and_python3_kernel(name):
-    nb = nbformat.read(ROOT / "analyses" / f"{name}.ipynb", as_version=4)
-    assert nb.metadata["kernelspec"]["name"] == "python3"  # STACK.md: other kernelspecs fail under papermill
-    tagged = [c for c in nb.cells if "parameters" in c.metadata.get("tags", [])]
-    assert len(tagged) == 1
-    names = {t.id for node in ast.parse(tagged[0].source).body if isinstance(node, ast.Assign) for t in node.targets}
+    names = parameter_names(name)
+    nb = notebook(name)
     assert REQUIRED | OWN[name] <= names
     assert CAUTION in nb.cells[0].source
 
 
 def test_demo_notebooks_reproduce_under_nbval():
     """The committed outputs (comparison, ANOVA, proportionality tables) are reproduced cell by cell."""
-    cmd = [sys.executable, "-m", "pytest", "-q", "-p", "no:cacheprovider", "--nbval", "--nbval-current-env",
-           "--nbval-sanitize-with", str(ROOT / "nbval_sanitize.cfg"), "--nbval-cell-timeout", "120",
-           "--nbval-kernel-startup-timeout", "120", *[str(ROOT / "analyses" / f"{n}.ipynb") for n in NOTEBOOKS]]
-    r = subprocess.run(cmd, cwd=ROOT, capture_output=True, text=True, timeout=900)
+    r = run_nbval(NOTEBOOKS)
     assert r.returncode == 0, r.stdout[-6000:] + r.stderr[-2000:]
 
 
@@ -79,7 +71,7 @@ def test_comparison_on_tetracycline(tmp_path):
     df.to_csv(path, index=False)
     params = dict(data_path=str(path), columns={"subject": "ID", "treatment": "FORM", "time": "T_H", "conc": "C"},
                   sequence=None, time_unit="h", conc_unit="mg/L", dose_unit="mg", dose=None, auc_method="linear",
-                  group_by=["FORM"], selection_record=str(tmp_path / "none.json"), intervals=[], test="tetracyn",
+                  group_by=["FORM"], selection_record=None, intervals=[], test="tetracyn",
                   reference="tetrachel", parameters=["CMAX", "TMAX"])
     out = run_analysis(ROOT / "analyses" / "comparison.ipynb", tmp_path / "out", params, timeout=300)
     table = pd.read_csv(tmp_path / "out" / "comparison.csv").set_index("parameter")
@@ -106,7 +98,7 @@ def test_dose_proportionality_on_theoph(tmp_path):
     df.to_csv(path, index=False)
     params = dict(data_path=str(path), columns={"subject": "ID", "time": "TIME", "conc": "CONC", "dose": "AMT"},
                   time_unit="h", conc_unit="mg/L", dose_unit="mg/kg", group_by=[], auc_method="linear",
-                  selection_record=str(tmp_path / "none.json"), parameters=["CMAX", "AUCLST"])
+                  selection_record=None, parameters=["CMAX", "AUCLST"])
     run_analysis(ROOT / "analyses" / "dose_proportionality.ipynb", tmp_path / "out", params, timeout=300)
     table = pd.read_csv(tmp_path / "out" / "dose_proportionality.csv").set_index("parameter")
     peaks = _peaks(df, ["ID", "AMT"], "TIME", "CONC")

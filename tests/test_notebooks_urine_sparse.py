@@ -12,19 +12,17 @@ Sources of the check values:
 
 from __future__ import annotations
 
-import ast
 import math
 import statistics
-import subprocess
-import sys
 from pathlib import Path
 
-import nbformat
 import numpy as np
 import pandas as pd
 import pytest
 from scipy import stats
 from scipy.integrate import trapezoid
+
+from _notebooks import parameter_names, run_nbval
 
 from pkwidgets.report import run_analysis
 from pkwidgets.sparse import trapezoid_weights
@@ -41,20 +39,13 @@ pytestmark = [pytest.mark.notebook, pytest.mark.slow]
 
 @pytest.mark.parametrize("name", NOTEBOOKS)
 def test_notebook_has_one_parameters_cell_and_python3_kernel(name):
-    nb = nbformat.read(ROOT / "analyses" / f"{name}.ipynb", as_version=4)
-    assert nb.metadata["kernelspec"]["name"] == "python3"  # STACK.md: other kernelspecs fail under papermill
-    tagged = [c for c in nb.cells if "parameters" in c.metadata.get("tags", [])]
-    assert len(tagged) == 1
-    names = {t.id for node in ast.parse(tagged[0].source).body if isinstance(node, ast.Assign) for t in node.targets}
+    names = parameter_names(name)
     assert NOTEBOOKS[name] <= names
 
 
 def test_demo_notebooks_reproduce_under_nbval():
     """The committed outputs (tables of parameters) are reproduced cell by cell (options as tests/test_notebooks.py)."""
-    cmd = [sys.executable, "-m", "pytest", "-q", "-p", "no:cacheprovider", "--nbval", "--nbval-current-env",
-           "--nbval-sanitize-with", str(ROOT / "nbval_sanitize.cfg"), "--nbval-cell-timeout", "120",
-           "--nbval-kernel-startup-timeout", "120", *[str(ROOT / "analyses" / f"{n}.ipynb") for n in NOTEBOOKS]]
-    r = subprocess.run(cmd, cwd=ROOT, capture_output=True, text=True, timeout=900)
+    r = run_nbval(NOTEBOOKS)
     assert r.returncode == 0, r.stdout[-6000:] + r.stderr[-2000:]
 
 

@@ -20,6 +20,7 @@ import nbformat
 import numpy as np
 import pandas as pd
 import pytest
+from _notebooks import run_nbval
 
 ROOT = Path(__file__).resolve().parents[1]
 NOTEBOOK = ROOT / "analyses" / "sdtm_single_dose.ipynb"
@@ -40,10 +41,7 @@ def test_parameters_cell_names_sdtm_inputs():
 
 
 def test_demo_reproduces_under_nbval():
-    cmd = [sys.executable, "-m", "pytest", "-q", "-p", "no:cacheprovider", "--nbval", "--nbval-current-env",
-           "--nbval-sanitize-with", str(ROOT / "nbval_sanitize.cfg"), "--nbval-cell-timeout", "120",
-           "--nbval-kernel-startup-timeout", "120", str(NOTEBOOK)]
-    r = subprocess.run(cmd, cwd=ROOT, capture_output=True, text=True, timeout=600)
+    r = run_nbval(["sdtm_single_dose"])
     assert r.returncode == 0, r.stdout[-6000:] + r.stderr[-2000:]
 
 
