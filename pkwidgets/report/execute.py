@@ -62,8 +62,9 @@ def _resolve(notebook, declared, parameters, final) -> dict:
     for name in _PATH_PARAMETERS:  # the kernel runs in the notebook's folder
         if isinstance(params.get(name), (str, os.PathLike)):
             params[name] = os.path.abspath(os.fspath(params[name]))
-    if "selection_record" in declared and params.get("selection_record") is None:
-        params["selection_record"] = os.path.join(final, SELECTION_FILE)
+    kept = os.path.join(final, SELECTION_FILE)  # the output folder's own record, once one has been saved there
+    if "selection_record" in declared and params.get("selection_record") is None and os.path.exists(kept):
+        params["selection_record"] = kept
     _check_data_file(_data_file(notebook, declared, params), final)
     return params
 
