@@ -12,11 +12,36 @@ import pandas as pd
 
 from .blq import parse_concentrations
 
-__all__ = ["summarize", "STATISTICS", "geometric_cv", "with_groups", "blq_positions", "mean_profiles",
-           "reference_median"]
+__all__ = ["summarize", "STATISTICS", "MEDIAN_ONLY", "NOT_RATIO_SCALE", "geometric_cv", "with_groups",
+           "blq_positions", "mean_profiles", "reference_median", "statistics_for", "leave_out", "bin_times"]
 
 #: Statistic columns of :func:`summarize`, in order.
 STATISTICS = ("N", "Mean", "SD", "CV%", "Geo. mean", "Geo. CV%", "Median", "Min", "Max")
+
+#: Times read on the sampling grid and counts: summarised as median (min-max) only (their distribution is
+#: discrete; common practice, no source).
+MEDIAN_ONLY = frozenset({"TMAX", "TLAG", "TLST", "TMIN", "LAMZNPT", "LAMZLL", "LAMZUL", "ERTMAX", "ERTLST"})
+#: Parameters that are not on a ratio scale (bounded percentages, goodness of fit, spans): arithmetic
+#: statistics only, no geometric mean or CV (common practice, no source).
+NOT_RATIO_SCALE = frozenset({"R2", "R2ADJ", "CORRXY", "LAMZSPN", "AUCPEO", "AUCPEP", "AUMCPEO", "AUCPBEO", "FLUCP",
+                             "SWING", "RCPCINT", "AURCPEO"})
+
+
+def statistics_for(code) -> tuple:
+    """The statistics of :data:`STATISTICS` reported for a parameter.
+
+    Examples
+    --------
+    >>> statistics_for("TMAX")
+    ('N', 'Median', 'Min', 'Max')
+    >>> "Geo. mean" in statistics_for("R2ADJ"), "Geo. mean" in statistics_for("CMAX")
+    (False, True)
+    """
+    if code in MEDIAN_ONLY:
+        return ("N", "Median", "Min", "Max")
+    if code in NOT_RATIO_SCALE:
+        return tuple(s for s in STATISTICS if not s.startswith("Geo."))
+    return STATISTICS
 
 
 def geometric_cv(values) -> float:
@@ -76,7 +101,7 @@ def _stats(x: np.ndarray) -> list:
     return [n, mean, sd, cv, gmean, gcv, float(np.median(x)), float(np.min(x)), float(np.max(x))]
 
 
-def summarize(table, *, by=None, parameters=None, units=None) -> pd.DataFrame:
+def summarize(table, *, by=None, parameters=None, units=None, all_statistics=False) -> pd.DataFrame:
     r"""Group summaries of parameters: one row per group and parameter.
 
     Parameters
@@ -92,6 +117,11 @@ def summarize(table, *, by=None, parameters=None, units=None) -> pd.DataFrame:
         not a grouping column and has at least one value.
     units : dict, optional
         Code -> unit text; default ``table.units`` when the table has it.
+    all_statistics : bool
+        Compute every statistic for every parameter.  By default the
+        statistics :func:`statistics_for` leaves out are NaN: TMAX, TLAG and
+        counts get N, median, min and max only; parameters not on a ratio
+        scale (R2ADJ, AUCPEO...) get no geometric statistics.
 
     Returns
     -------
@@ -151,7 +181,11 @@ def summarize(table, *, by=None, parameters=None, units=None) -> pd.DataFrame:
         key = key if isinstance(key, tuple) else (key,)
         for code in parameters:
             x = g[code].to_numpy(dtype=np.float64, na_value=np.nan)
-            out.append(list(key) + [code, units.get(code, "")] + _stats(x))
+            values = _stats(x)
+            if not all_statistics:
+                kept = statistics_for(code)
+                values = [v if s in kept else np.nan for s, v in zip(STATISTICS, values)]
+            out.append(list(key) + [code, units.get(code, "")] + values)
     res = pd.DataFrame(out, columns=by + ["PPTESTCD", "unit"] + list(STATISTICS))
     res["N"] = res["N"].astype(int)
     return res
@@ -353,3 +387,71 @@ def reference_median(table, column, reference, parameter="TMAX") -> float:
                          f"{parameter}; values of {column} are {sorted(groups.unique())}. Set reference to one of "
                          "them, or None to skip the early-exposure cut.")
     return float(np.median(values))
+
+
+def leave_out(result, exclude) -> pd.DataFrame:
+    """Profiles left out of the summaries, each with its stated reason.
+
+    Parameters
+    ----------
+    result : NCAResult
+    exclude : dict or None
+        Profile key -> reason, e.g. ``{"S3": "vomited at 1 h"}``; a key of
+        several columns as a tuple or as text ``"S3, 2"``.
+
+    Returns
+    -------
+    pandas.DataFrame
+        Key columns, ``profile_id`` and ``reason``: one row per profile left out.
+
+    Raises
+    ------
+    ValueError
+        If a reason is empty, or a key names no profile of the result.
+    """
+    by = list(result.by)
+    rows = []
+    for key, reason in dict(exclude or {}).items():
+        if not isinstance(reason, str) or not reason.strip():
+            raise ValueError(f"exclude_from_summary: profile {key!r} needs a reason (text), e.g. "
+                             f"{{{key!r}: 'vomited at 1 h'}}; got {reason!r}.")
+        value = tuple(v.strip() for v in key.split(",")) if isinstance(key, str) and len(by) > 1 else key
+        try:
+            pid = result.profile_id(value)
+        except (KeyError, ValueError) as exc:
+            raise ValueError(f"exclude_from_summary: {key!r} names no profile (keys are {', '.join(by)}): "
+                             f"{exc}") from None
+        row = result.parameters.loc[result.parameters["profile_id"] == pid, by].iloc[0].to_dict()
+        rows.append({**row, "profile_id": pid, "reason": reason.strip()})
+    return pd.DataFrame(rows, columns=by + ["profile_id", "reason"])
+
+
+def bin_times(times, tolerance=0.1) -> np.ndarray:
+    """Actual sampling times gathered into bins, each labelled by its median time.
+
+    Sorted distinct times join the bin before them while they are within
+    ``tolerance`` (relative) of that bin's first time, or within 1 % of the
+    longest time (common practice for descriptive mean curves, no source).
+
+    Examples
+    --------
+    >>> bin_times([0.0, 0.5, 0.52, 1.0, 1.05, 24.0]).tolist()
+    [0.0, 0.51, 0.51, 1.025, 1.025, 24.0]
+    """
+    t = np.asarray(times, dtype=np.float64)
+    out = np.full_like(t, np.nan)
+    finite = np.unique(t[np.isfinite(t)])
+    if finite.size == 0:
+        return out
+    span = 0.01 * float(np.max(np.abs(finite)))
+    bins, start = [[finite[0]]], finite[0]
+    for x in finite[1:]:
+        if x - start <= max(tolerance * abs(start), span):
+            bins[-1].append(x)
+        else:
+            bins.append([x])
+            start = x
+    for members in bins:
+        inside = np.isin(t, members)
+        out[inside] = float(np.median(t[inside]))
+    return out
