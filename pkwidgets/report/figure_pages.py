@@ -78,8 +78,7 @@ def plot_profile_pages(result, keys=None, *, per_page=PER_PAGE, conc_unit="", ti
     ----------
     result : NCAResult
     keys : sequence, optional
-        Profile keys in display order; default every profile in the order of
-        ``result.parameters``.
+        Profile keys in display order; default every profile, keys in natural order.
     per_page : int
         Panels per figure.
 
@@ -91,9 +90,12 @@ def plot_profile_pages(result, keys=None, *, per_page=PER_PAGE, conc_unit="", ti
     """
     import matplotlib.pyplot as plt
 
+    from .tables import natural_sort
+
     by = list(result.by)
-    if keys is None:
-        keys = [tuple(r) if len(by) > 1 else r[0] for r in result.parameters[by].itertuples(index=False)]
+    if keys is None:  # every profile, subjects in natural order (S2 before S10)
+        ordered = natural_sort(result.parameters[by], by)
+        keys = [tuple(r) if len(by) > 1 else r[0] for r in ordered.itertuples(index=False)]
     conc_col = result.settings["columns"]["conc"]
     figures = []
     for start in range(0, len(keys), per_page):

@@ -22,6 +22,8 @@ __all__ = ["ROLES", "PARAMETER_HELP", "AnalysisSetup", "analysis_setup", "displa
 ROLES = ("subject", "time", "conc", "dose", "period", "day", "treatment", "analyte", "blq", "lloq",
          "nominal_time", "tau", "duration")
 _KEY_ROLES = ("period", "day", "treatment", "analyte")
+#: File name of a run's own selection record (may be new); a record of any other name must exist.
+_OWN_RECORD = "terminal_selection.json"
 
 #: What each shared notebook parameter means (shown by ``pkwidgets params`` when the notebook has no comment).
 PARAMETER_HELP = {
@@ -154,7 +156,10 @@ def analysis_setup(*, data_path, output_dir, columns, time_unit, conc_unit, dose
     selection_record : str or None
         Terminal-phase record; None means ``terminal_selection.json`` in
         ``output_dir`` (a new record when it does not exist yet).  A record
-        named here must exist (a mistyped path is an error).
+        of another name must exist (a mistyped path is an error); one named
+        ``terminal_selection.json`` is a run's own record and may be new
+        (:func:`~pkwidgets.report.run_analysis` keeps it in the final output
+        folder).
     nca_extra : dict, optional
         Further :func:`pkwidgets.nca` options of the notebook (``tau``, ``occasion``...).
     **own
@@ -188,7 +193,8 @@ def analysis_setup(*, data_path, output_dir, columns, time_unit, conc_unit, dose
     roles = _check_roles(columns, data_path)
     by = [roles["subject"]] + [roles[r] for r in _KEY_ROLES if r in roles]
     group_by, notes = _groups(group_by, roles, dose, dose_unit)
-    default_record = not selection_record  # the output folder's own record may not exist yet; a named one must
+    # the run's own record (terminal_selection.json, where run_analysis keeps it) may not exist yet; another must
+    default_record = not selection_record or os.path.basename(os.fspath(selection_record)) == _OWN_RECORD
     selection_record = selection_record or os.path.join(output_dir, "terminal_selection.json")
     options = _nca_options(roles, by, dose=dose, units={"time": time_unit, "conc": conc_unit, "dose": dose_unit},
                            route=route, auc_method=auc_method, blq_rules=blq_rules, selections=selection_record,
