@@ -33,14 +33,14 @@ def fit_caption(fit, time_unit="") -> str:
     --------
     >>> fit_caption({"LAMZ": 0.1, "LAMZHL": 6.93, "R2ADJ": 0.991, "LAMZNPT": 4, "LAMZLL": 8.0, "LAMZUL": 24.0,
     ...              "manual": False}, "h")
-    'λz 0.100 /h, t½ 6.93 h, R²adj 0.991, 4 pts, 8.00–24.0 h'
+    'λz 0.100 /h, t½ 6.93 h, R²adj 0.991,\n4 pts, 8.00–24.0 h'
     """
     lam = fit.get("LAMZ", np.nan)
     if not np.isfinite(lam):
         return "λz not estimable"
     unit = f" {time_unit}" if time_unit else ""
     text = (f"λz {format_value(lam)} /{time_unit or 'time'}, t½ {format_value(fit.get('LAMZHL'))}{unit}, "
-            f"R²adj {format_value(fit.get('R2ADJ'))}, {format_value(fit.get('LAMZNPT'), count=True)} pts, "
+            f"R²adj {format_value(fit.get('R2ADJ'))},\n{format_value(fit.get('LAMZNPT'), count=True)} pts, "
             f"{format_value(fit.get('LAMZLL'))}–{format_value(fit.get('LAMZUL'))}{unit}")
     return text + (", by hand" if fit.get("manual") else "")
 
@@ -101,9 +101,9 @@ def plot_profile_pages(result, keys=None, *, per_page=PER_PAGE, conc_unit="", ti
     for start in range(0, len(keys), per_page):
         chunk = keys[start:start + per_page]
         rows = -(-len(chunk) // _COLUMNS)
-        fig, axes = plt.subplots(rows, _COLUMNS, figsize=(12, 2.6 * rows), dpi=dpi, squeeze=False,
-                                 gridspec_kw=dict(left=0.06, right=0.99, bottom=0.2 / rows, top=1 - 0.2 / rows,
-                                                  wspace=0.25, hspace=0.75))
+        fig, axes = plt.subplots(rows, _COLUMNS, figsize=(12, 2.8 * rows), dpi=dpi, squeeze=False,
+                                 gridspec_kw=dict(left=0.06, right=0.99, bottom=0.2 / rows, top=1 - 0.3 / rows,
+                                                  wspace=0.25, hspace=0.95))
         for ax, key in zip(axes.flat, chunk):
             prof = result.profile(key)
             c = pd.to_numeric(prof.samples[conc_col], errors="coerce")

@@ -14,14 +14,13 @@ import os
 import numpy as np
 import pandas as pd
 
-from .tables import MISSING, format_value, report_table
+from .tables import MISSING, format_value, report_table, unit_header
 
 __all__ = ["terminal_phase_table", "concentration_listing", "parameter_table", "left_out_table", "unused_table",
            "mean_profile_data", "mean_n_table"]
 
-_RULE_NAMES = {"adjusted-r2": "automatic (highest adjusted R²)", "two-tmax": "automatic (points from 2×TMAX)",
-               "last-n": "automatic (last n points)", "aicc": "automatic (lowest AICc)",
-               "tail-extension": "automatic (tail extension)"}
+_RULE_NAMES = {"adjusted-r2": "highest adjusted R²", "two-tmax": "points from 2×TMAX", "last-n": "last n points",
+               "aicc": "lowest AICc", "tail-extension": "tail extension"}
 
 
 def _key_texts(items) -> set:
@@ -72,7 +71,7 @@ def terminal_phase_table(result, sig=3):
     sel = result.settings.get("selections") or {}
     applied, stale = _key_texts(sel.get("applied")), _key_texts(sel.get("stale"))
     record = _record(result)
-    rule = _RULE_NAMES.get((result.settings.get("options") or {}).get("lambda_z_rule", "adjusted-r2"), "automatic")
+    rule = (result.settings.get("options") or {}).get("lambda_z_rule", "adjusted-r2")
     rows = []
     for _, prow in result.parameters.iterrows():
         key = tuple(prow[b] for b in by)
@@ -80,7 +79,7 @@ def terminal_phase_table(result, sig=3):
         fit = prof.fit
         state = record.state(key) if record is not None else None
         row = {b: prow[b] for b in by}
-        row.update({"choice": rule, "window": _window(fit.get("LAMZLL"), fit.get("LAMZUL"), sig),
+        row.update({"choice": "automatic", "window": _window(fit.get("LAMZLL"), fit.get("LAMZUL"), sig),
                     "points": fit.get("LAMZNPT"),
                     "times in fit": ", ".join(format_value(t, sig) for t in fit["times_used"]) or MISSING,
                     "excluded times": ", ".join(format_value(t, sig) for t in fit["times_excluded"]) or "none",
@@ -91,9 +90,12 @@ def terminal_phase_table(result, sig=3):
             row["window"] = "λz not estimable"
         rows.append(row)
     table = pd.DataFrame(rows)
-    return report_table(table, keys=by, sig=sig, counts={"points"},
-                        caption="Terminal phase of every profile: automatic rule or hand choice (the latest entry "
-                                "of the selection record), the fit window, the points used and excluded.")
+    table = report_table(table, keys=by, sig=sig, counts={"points"},
+                         caption=f"Terminal phase of every profile: the automatic rule ({_RULE_NAMES.get(rule, rule)}) "
+                                 "or a hand choice (the latest entry of the selection record), the fit window, the "
+                                 "points used and excluded.")
+    table.numeric |= {"window"}
+    return table
 
 
 def _window(lo, hi, sig) -> str:
@@ -129,10 +131,13 @@ def concentration_listing(result, *, nominal_time=None, sig=3):
     out["_t"] = pd.to_numeric(s["nca_time"], errors="coerce").to_numpy()
     out = out.sort_values("_t", kind="stable").drop(columns="_t")
     units = result.settings.get("units") or {}
-    return report_table(out, keys=by, sig=sig,
-                        units={"time": units.get("time"), "nominal time": units.get("time"),
-                               "concentration": units.get("conc"), "LLOQ": units.get("conc")},
-                        caption="Concentrations as given, by profile (BLQ: below the lower limit of quantification).")
+    units = {"time": units.get("time"), "nominal time": units.get("time"), "concentration": units.get("conc"),
+             "LLOQ": units.get("conc")}
+    table = report_table(out, keys=by, sig=sig, units=units,
+                         caption="Concentrations as given, by profile, in time order (BLQ: below the lower limit of "
+                                 "quantification; λz fit: the sample is one of the terminal-phase points).")
+    table.numeric |= {unit_header(c, units) for c in units}
+    return table
 
 
 def _conc_text(value, sig) -> str:
@@ -172,8 +177,10 @@ def unused_table(result, sig=3):
     out["time"] = u[cols["time"]]
     out["concentration"] = [_conc_text(v, sig) for v in u[cols["conc"]]]
     out["reason"] = u["nca_reason"].astype(str)
-    return report_table(out, keys=by, sig=sig, counts={"line"},
-                        caption="Rows not used, with the reason (line: line of the data file).")
+    table = report_table(out, keys=by, sig=sig, counts={"line"},
+                         caption="Rows not used, with the reason (line: line of the data file).")
+    table.numeric |= {"time", "concentration"}
+    return table
 
 
 def mean_profile_data(result, *, group_by, nominal_time=None, left_out=None, tolerance=0.1):

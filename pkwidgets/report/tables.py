@@ -19,7 +19,7 @@ import numpy as np
 import pandas as pd
 
 __all__ = ["SIGNIFICANT", "MISSING", "COUNT_CODES", "format_value", "natural_key", "natural_sort", "unit_header",
-           "ReportTable", "report_table", "summary_table"]
+           "ReportTable", "report_table", "summary_table", "key_text"]
 
 #: Significant figures of the values shown in the record (the CSV exports keep full precision).
 SIGNIFICANT = 3
@@ -105,24 +105,34 @@ class ReportTable:
     caption : str
     """
 
-    def __init__(self, frame, keys=(), caption=""):
+    def __init__(self, frame, keys=(), caption="", numeric=()):
         self.frame = frame
         self.keys = [k for k in keys if k in frame.columns]
         self.caption = caption
+        self.numeric = set(numeric)
 
     def blocks(self, max_columns=MAX_COLUMNS) -> list:
-        """The table split into column blocks of at most ``max_columns`` value columns, keys repeated."""
+        """The table split into even column blocks of at most ``max_columns`` value columns, keys repeated."""
         values = [c for c in self.frame.columns if c not in self.keys]
         if len(values) <= max_columns:
             return [self.frame]
-        return [self.frame[self.keys + values[i:i + max_columns]] for i in range(0, len(values), max_columns)]
+        n = -(-len(values) // max_columns)
+        size = -(-len(values) // n)
+        return [self.frame[self.keys + values[i:i + size]] for i in range(0, len(values), size)]
+
+    def _block_html(self, block) -> str:
+        """One block as an HTML table; numeric columns right-aligned, text left-aligned."""
+        cls = {c: ' class="pkw-num"' if c in self.numeric else "" for c in block.columns}
+        head = "".join(f"<th{cls[c]}>{html.escape(str(c))}</th>" for c in block.columns)
+        body = "".join("<tr>" + "".join(f"<td{cls[c]}>{html.escape(str(v))}</td>" for c, v in zip(block.columns, row))
+                       + "</tr>\n" for row in block.itertuples(index=False))
+        return f'<table class="pkw-table"><thead><tr>{head}</tr></thead><tbody>\n{body}</tbody></table>'
 
     def _repr_html_(self) -> str:
-        parts = [f'<div class="pkw-table-wrap">']
+        parts = ['<div class="pkw-table-wrap">']
         if self.caption:
             parts.append(f'<p class="pkw-caption">{html.escape(self.caption)}</p>')
-        for block in self.blocks():
-            parts.append(block.to_html(index=False, escape=True, classes="pkw-table", border=0, na_rep=MISSING))
+        parts += [self._block_html(block) for block in self.blocks()]
         parts.append("</div>")
         return "\n".join(parts)
 
@@ -163,9 +173,24 @@ def report_table(frame, *, units=None, keys=(), sig=SIGNIFICANT, counts=COUNT_CO
     if sort:
         frame = natural_sort(frame, keys)
     frame = frame[keys + [c for c in frame.columns if c not in keys]]
-    text = pd.DataFrame({unit_header(c, units): frame[c].map(lambda v, c=c: format_value(v, sig, count=c in counts))
-                         for c in frame.columns})
-    return ReportTable(text, keys=[unit_header(k, units) for k in keys], caption=caption)
+    text = pd.DataFrame({unit_header(c, units): frame[c].map(key_text) if c in keys else
+                         frame[c].map(lambda v, c=c: format_value(v, sig, count=c in counts)) for c in frame.columns})
+    numeric = [unit_header(c, units) for c in frame.columns
+               if c not in keys and pd.api.types.is_numeric_dtype(frame[c]) and not pd.api.types.is_bool_dtype(frame[c])]
+    return ReportTable(text, keys=[unit_header(k, units) for k in keys], caption=caption, numeric=numeric)
+
+
+def key_text(value) -> str:
+    """A profile key or group value as text: whole numbers without decimals (subject 1, not 1.00).
+
+    Examples
+    --------
+    >>> key_text(1.0), key_text("S01"), key_text(2.5)
+    ('1', 'S01', '2.5')
+    """
+    from .labels import format_group_value
+
+    return format_group_value(value)
 
 
 def _whole(x, sig) -> str:
@@ -211,6 +236,7 @@ def summary_table(summaries, *, group_by=(), group_units=None, sig=SIGNIFICANT, 
                     "Median (min–max)": _median_range(r, sig)})
         rows.append(row)
     frame = pd.DataFrame(rows)
-    return ReportTable(frame, keys=group_by + ["parameter"], caption=caption or
+    numeric = ["N", "Mean (SD)", "CV%", "Geo. mean (Geo. CV%)", "Median (min–max)"]
+    return ReportTable(frame, keys=group_by + ["parameter"], numeric=numeric, caption=caption or
                        "TMAX, TLAG and counts: median (min–max) only; geometric statistics for ratio-scale "
                        "parameters only; — : not reported.")
