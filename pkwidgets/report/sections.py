@@ -75,7 +75,7 @@ def terminal_phase_table(result, sig=3):
     rows = []
     for _, prow in result.parameters.iterrows():
         key = tuple(prow[b] for b in by)
-        prof = result.profile(key if len(by) > 1 else key[0])
+        prof = result.profile(profile_id=int(prow["profile_id"]))
         fit = prof.fit
         state = record.state(key) if record is not None else None
         row = {b: prow[b] for b in by}
