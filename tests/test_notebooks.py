@@ -109,8 +109,7 @@ def runs(theoph, tmp_path_factory):
     }
     for name in NOTEBOOKS:
         folder = tmp_path_factory.mktemp(name)
-        params = {**COMMON, "data_path": str(path), "selection_record": str(folder / "no_record.json"),
-                  **extra[name]}
+        params = {**COMMON, "data_path": str(path), **extra[name]}  # the run's own (new) selection record
         out[name] = run_analysis(ROOT / "analyses" / f"{name}.ipynb", folder, params, timeout=300)
         out[name]["dir"] = folder
     return out
