@@ -183,7 +183,7 @@ def unused_table(result, sig=3):
     return table
 
 
-def mean_profile_data(result, *, group_by, nominal_time=None, left_out=None, tolerance=0.1):
+def mean_profile_data(result, *, group_by, nominal_time=None, left_out=None, tolerance=0.1, time_unit=""):
     """Rows for mean profiles and the caption that says how times were lined up.
 
     With a nominal-time column the means are by nominal time, and the caption
@@ -212,14 +212,16 @@ def mean_profile_data(result, *, group_by, nominal_time=None, left_out=None, tol
         caption = f"Means by nominal time ({nominal_time}); BLQ as 0; n: profiles with a value at each time."
         if off.any():
             caption += (f" Warning: {int(off.sum())} sample(s) taken more than {tolerance:.0%} away from their "
-                        f"nominal time (largest difference {format_value(np.nanmax(np.abs(actual - nominal)[off]))}).")
+                        f"nominal time (largest difference {format_value(np.nanmax(np.abs(actual - nominal)[off]))}"
+                        f"{' ' + time_unit if time_unit else ''}).")
         return rows, caption
     rows["_mean_time"] = bin_times(actual, tolerance)
     caption = ("No nominal-time column: actual times after the dose gathered into bins of times within "
                f"{tolerance:.0%} of each other, each shown at its median time; BLQ as 0; n: samples in each bin.")
     spread = pd.Series(actual).groupby(rows["_mean_time"].to_numpy()).agg(lambda x: x.max() - x.min())
     if (spread > 0).any():
-        caption += f" Warning: actual times differ between profiles (up to {format_value(spread.max())} within a bin)."
+        caption += (f" Warning: actual times differ between profiles (up to {format_value(spread.max())}"
+                    f"{' ' + time_unit if time_unit else ''} within a bin).")
     return rows, caption
 
 
@@ -236,4 +238,6 @@ def mean_n_table(means, *, group_by, group_units=None, time_unit="", sig=3):
                                           if np.isfinite(r["sd"]) else format_value(r["mean"], sig))
             row[f"{label}: n"] = str(int(r["n"]))
     frame = pd.DataFrame([rows[t] for t in sorted(rows)]).fillna(MISSING)
-    return report_table(frame, keys=["time"], units={"time": time_unit}, sig=sig)
+    table = report_table(frame, keys=["time"], units={"time": time_unit}, sig=sig)
+    table.numeric |= set(table.frame.columns)
+    return table

@@ -19,7 +19,7 @@ import numpy as np
 import pandas as pd
 
 __all__ = ["SIGNIFICANT", "MISSING", "COUNT_CODES", "format_value", "natural_key", "natural_sort", "unit_header",
-           "ReportTable", "report_table", "summary_table", "key_text"]
+           "ReportTable", "report_table", "summary_table", "key_text", "Caption"]
 
 #: Significant figures of the values shown in the record (the CSV exports keep full precision).
 SIGNIFICANT = 3
@@ -240,3 +240,16 @@ def summary_table(summaries, *, group_by=(), group_units=None, sig=SIGNIFICANT, 
     return ReportTable(frame, keys=group_by + ["parameter"], numeric=numeric, caption=caption or
                        "TMAX, TLAG and counts: median (min–max) only; geometric statistics for ratio-scale "
                        "parameters only; — : not reported.")
+
+
+class Caption:
+    """A caption or note shown as a paragraph in the record (as text elsewhere)."""
+
+    def __init__(self, text, note=False):
+        self.text, self.note = str(text), note
+
+    def _repr_html_(self) -> str:
+        return f'<p class="{"pkw-note" if self.note else "pkw-caption"}">{html.escape(self.text)}</p>'
+
+    def __repr__(self) -> str:
+        return self.text
