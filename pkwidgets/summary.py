@@ -11,6 +11,7 @@ import numpy as np
 import pandas as pd
 
 from .blq import parse_concentrations
+from .summary_sets import bin_times, leave_out  # noqa: F401  (part of this module's interface)
 
 __all__ = ["summarize", "STATISTICS", "MEDIAN_ONLY", "NOT_RATIO_SCALE", "geometric_cv", "with_groups",
            "blq_positions", "mean_profiles", "reference_median", "statistics_for", "leave_out", "bin_times"]
@@ -101,7 +102,7 @@ def _stats(x: np.ndarray) -> list:
     return [n, mean, sd, cv, gmean, gcv, float(np.median(x)), float(np.min(x)), float(np.max(x))]
 
 
-def summarize(table, *, by=None, parameters=None, units=None, all_statistics=False) -> pd.DataFrame:
+def summarize(table, *, by=None, parameters=None, units=None, scale_rules=False) -> pd.DataFrame:
     r"""Group summaries of parameters: one row per group and parameter.
 
     Parameters
@@ -117,11 +118,12 @@ def summarize(table, *, by=None, parameters=None, units=None, all_statistics=Fal
         not a grouping column and has at least one value.
     units : dict, optional
         Code -> unit text; default ``table.units`` when the table has it.
-    all_statistics : bool
-        Compute every statistic for every parameter.  By default the
-        statistics :func:`statistics_for` leaves out are NaN: TMAX, TLAG and
-        counts get N, median, min and max only; parameters not on a ratio
-        scale (R2ADJ, AUCPEO...) get no geometric statistics.
+    scale_rules : bool
+        Report only the statistics that suit each parameter's scale
+        (:func:`statistics_for`; the others are NaN): TMAX, TLAG and counts
+        get N, median, min and max only; parameters not on a ratio scale
+        (R2ADJ, AUCPEO...) get no geometric statistics.  The study records
+        use True; default False (every statistic) for earlier callers.
 
     Returns
     -------
@@ -182,7 +184,7 @@ def summarize(table, *, by=None, parameters=None, units=None, all_statistics=Fal
         for code in parameters:
             x = g[code].to_numpy(dtype=np.float64, na_value=np.nan)
             values = _stats(x)
-            if not all_statistics:
+            if scale_rules:
                 kept = statistics_for(code)
                 values = [v if s in kept else np.nan for s, v in zip(STATISTICS, values)]
             out.append(list(key) + [code, units.get(code, "")] + values)
@@ -388,70 +390,3 @@ def reference_median(table, column, reference, parameter="TMAX") -> float:
                          "them, or None to skip the early-exposure cut.")
     return float(np.median(values))
 
-
-def leave_out(result, exclude) -> pd.DataFrame:
-    """Profiles left out of the summaries, each with its stated reason.
-
-    Parameters
-    ----------
-    result : NCAResult
-    exclude : dict or None
-        Profile key -> reason, e.g. ``{"S3": "vomited at 1 h"}``; a key of
-        several columns as a tuple or as text ``"S3, 2"``.
-
-    Returns
-    -------
-    pandas.DataFrame
-        Key columns, ``profile_id`` and ``reason``: one row per profile left out.
-
-    Raises
-    ------
-    ValueError
-        If a reason is empty, or a key names no profile of the result.
-    """
-    by = list(result.by)
-    rows = []
-    for key, reason in dict(exclude or {}).items():
-        if not isinstance(reason, str) or not reason.strip():
-            raise ValueError(f"exclude_from_summary: profile {key!r} needs a reason (text), e.g. "
-                             f"{{{key!r}: 'vomited at 1 h'}}; got {reason!r}.")
-        value = tuple(v.strip() for v in key.split(",")) if isinstance(key, str) and len(by) > 1 else key
-        try:
-            pid = result.profile_id(value)
-        except (KeyError, ValueError) as exc:
-            raise ValueError(f"exclude_from_summary: {key!r} names no profile (keys are {', '.join(by)}): "
-                             f"{exc}") from None
-        row = result.parameters.loc[result.parameters["profile_id"] == pid, by].iloc[0].to_dict()
-        rows.append({**row, "profile_id": pid, "reason": reason.strip()})
-    return pd.DataFrame(rows, columns=by + ["profile_id", "reason"])
-
-
-def bin_times(times, tolerance=0.1) -> np.ndarray:
-    """Actual sampling times gathered into bins, each labelled by its median time.
-
-    Sorted distinct times join the bin before them while they are within
-    ``tolerance`` (relative) of that bin's first time, or within 1 % of the
-    longest time (common practice for descriptive mean curves, no source).
-
-    Examples
-    --------
-    >>> bin_times([0.0, 0.5, 0.52, 1.0, 1.05, 24.0]).tolist()
-    [0.0, 0.51, 0.51, 1.025, 1.025, 24.0]
-    """
-    t = np.asarray(times, dtype=np.float64)
-    out = np.full_like(t, np.nan)
-    finite = np.unique(t[np.isfinite(t)])
-    if finite.size == 0:
-        return out
-    span = 0.01 * float(np.max(np.abs(finite)))
-    bins, start = [[finite[0]]], finite[0]
-    for x in finite[1:]:
-        if x - start <= max(tolerance * abs(start), span):
-            bins[-1].append(x)
-        else:
-            bins.append([x])
-            start = x
-    for members in bins:
-        inside = np.isin(t, members)
-        out[inside] = float(np.median(t[inside]))
-    return out

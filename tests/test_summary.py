@@ -58,7 +58,7 @@ def test_summarize_against_independent_statistics():
 
 def test_summarize_missing_nonpositive_and_infinite_values():
     df = pd.DataFrame({"TMAX": [0.0, 1.0, 2.0, np.nan], "SWING": [np.inf, 1.0, 3.0, 2.0]})
-    s = summarize(df, all_statistics=True).set_index("PPTESTCD")
+    s = summarize(df).set_index("PPTESTCD")
     assert s.loc["TMAX", "N"] == 3  # NaN not counted
     assert math.isnan(s.loc["TMAX", "Geo. mean"])  # a 0 has no log
     assert s.loc["TMAX", "Mean"] == pytest.approx(1.0)
@@ -194,7 +194,7 @@ def test_record_header_folds_fingerprints_and_keeps_them_all():
 def test_statistics_follow_the_scale_of_each_parameter():
     df = pd.DataFrame({"TMAX": [1.0, 2.0, 4.0], "LAMZNPT": [3.0, 4.0, 6.0], "R2ADJ": [0.91, 0.95, 0.99],
                        "CMAX": [10.0, 20.0, 40.0]})
-    s = summarize(df).set_index("PPTESTCD")
+    s = summarize(df, scale_rules=True).set_index("PPTESTCD")
     for code in ("TMAX", "LAMZNPT"):
         assert s.loc[code, "Median"] == statistics.median(df[code])
         assert all(math.isnan(s.loc[code, k]) for k in ("Mean", "SD", "CV%", "Geo. mean", "Geo. CV%"))

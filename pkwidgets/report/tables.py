@@ -226,8 +226,13 @@ def summary_table(summaries, *, group_by=(), group_units=None, sig=SIGNIFICANT, 
 
     group_by = [g for g in ([group_by] if isinstance(group_by, str) else list(group_by or []))
                 if g in summaries.columns]
+    from ..summary import STATISTICS, statistics_for
+
     rows = []
     for _, r in summaries.iterrows():
+        r = r.copy()
+        for stat in set(STATISTICS) - set(statistics_for(r["PPTESTCD"])) - {"N"}:  # shown only where the scale suits
+            r[stat] = np.nan
         row = {g: format_group_value(r[g], (group_units or {}).get(g, "")) for g in group_by}
         row["parameter"] = unit_header(r["PPTESTCD"], {r["PPTESTCD"]: r.get("unit", "")})
         row.update({"N": format_value(r["N"], count=True), "Mean (SD)": _pair(r["Mean"], r["SD"], sig),
