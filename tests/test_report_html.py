@@ -207,3 +207,17 @@ def test_scalar_dose_with_the_default_dose_group_is_one_group():
                        time_unit="h", conc_unit="ng/mL", dose_unit="mg", route="extravascular", dose=25,
                        auc_method="linear", blq_rules=None, group_by=["dose"], selection_record=None)
     assert s.group_by == [] and s.nca_options["dose"] == 25 and "one dose group" in s.notes[0]
+
+
+def test_infusion_duration_as_a_parameter_or_a_column_role():
+    # The infusion duration reaches pkwidgets.nca as a value or a column (CDISC: MRTIVIFO = MRT minus duration/2
+    # for an infusion, see pkwidgets/parameters.py); the record's set for an infusion is the IV one.
+    from pkwidgets.report import analysis_setup, parameter_set
+
+    common = dict(data_path="d.csv", output_dir="out", time_unit="h", conc_unit="ng/mL", dose_unit="mg",
+                  route="iv-infusion", dose=10, auc_method="linear", blq_rules=None, group_by=[], selection_record=None)
+    by_value = analysis_setup(columns={"subject": "ID", "time": "T", "conc": "C"}, duration=0.5, **common)
+    by_column = analysis_setup(columns={"subject": "ID", "time": "T", "conc": "C", "duration": "DUR"}, **common)
+    assert by_value.nca_options["duration"] == 0.5 and by_column.nca_options["duration"] == "DUR"
+    assert {"CLO", "VZO", "VSSO", "MRTIVIFO"} <= set(parameter_set("iv-infusion"))
+    assert "C0" not in parameter_set("iv-infusion")  # no back-extrapolated C0 for an infusion
