@@ -173,12 +173,14 @@ def unused_table(result, sig=3):
     if not len(u):
         return report_table(pd.DataFrame({"rows not used": ["none: every row was used"]}))
     out = u[by].copy()
-    out["line"] = u["nca_line"]
+    if "nca_line" in u.columns:  # a file was read (a table given in memory has no lines)
+        out["line"] = u["nca_line"]
     out["time"] = u[cols["time"]]
     out["concentration"] = [_conc_text(v, sig) for v in u[cols["conc"]]]
     out["reason"] = u["nca_reason"].astype(str)
     table = report_table(out, keys=by, sig=sig, counts={"line"},
-                         caption="Rows not used, with the reason (line: line of the data file).")
+                         caption="Rows not used, with the reason" + (" (line: line of the data file)." if "nca_line" in u.columns
+                                                                 else "."))
     table.numeric |= {"time", "concentration"}
     return table
 
