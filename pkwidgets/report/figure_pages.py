@@ -16,11 +16,26 @@ import pandas as pd
 
 from .tables import format_value
 
-__all__ = ["PER_PAGE", "ProfilePage", "fit_caption", "plot_profile_pages"]
+__all__ = ["PER_PAGE", "ProfilePage", "fit_caption", "short_label", "plot_profile_pages"]
 
 #: Panels per figure (4 columns).
 PER_PAGE = 12
 _COLUMNS = 4
+
+
+def short_label(key, width=44) -> str:
+    """A profile key short enough for a panel title: ``subject S101``, or the values ``01-701-1192 · XAN · PLASMA``.
+
+    Examples
+    --------
+    >>> short_label({"subject": "S101"}), short_label({"USUBJID": "01-701-1192", "PCTESTCD": "XAN"})
+    ('subject S101', '01-701-1192 · XAN')
+    """
+    from .tables import key_text
+
+    items = list(dict(key).items())
+    text = f"{items[0][0]} {key_text(items[0][1])}" if len(items) == 1 else " · ".join(key_text(v) for _, v in items)
+    return text if len(text) <= width else text[:width - 1] + "…"
 
 
 def fit_caption(fit, time_unit="") -> str:
@@ -110,7 +125,7 @@ class _Panels:
         c = pd.to_numeric(s[conc_col], errors="coerce").to_numpy(dtype=np.float64)
         ok = np.isfinite(c) & (c > 0) & np.isfinite(t)
         if not ok.any():
-            self.blank(i, f"{prof.label}: no measurable concentration (not plotted)")
+            self.blank(i, f"{short_label(prof.key)}: no measurable concentration (not plotted)")
             return
         ax.set_axis_on()
         note.set_text("")
@@ -125,7 +140,7 @@ class _Panels:
         lines[4].set_data(*_fit_line(prof))
         _decades(ax, y[ok])
         ax.set_xlim(*_pad(np.nanmin(t[ok]), np.nanmax(t[ok])))
-        ax.set_title(f"{prof.label}\n{fit_caption(prof.fit, time_unit)}", fontsize=7, loc="left", pad=2)
+        ax.set_title(f"{short_label(prof.key)}\n{fit_caption(prof.fit, time_unit)}", fontsize=7, loc="left", pad=2)
 
     def blank(self, i, text="") -> None:
         ax = self.axes[i]
@@ -200,7 +215,7 @@ def plot_profile_pages(result, keys=None, *, per_page=PER_PAGE, conc_unit="", ti
         labels = []
         for i, pid in enumerate(chunk):
             prof = result.profile(profile_id=int(pid))
-            labels.append(prof.label)
+            labels.append(short_label(prof.key))
             panels.show(i, prof, conc_col, time_unit)
         for i in range(len(chunk), len(panels.axes)):
             panels.blank(i)
