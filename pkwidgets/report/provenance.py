@@ -21,6 +21,7 @@ import platform
 import subprocess
 
 import numpy as np
+import pandas as pd
 
 from ..io import write_atomic
 
@@ -135,8 +136,11 @@ def _first_page(table, left_out) -> dict:
     from .words import flag_counts, rules_in_words, run_counts
 
     out = {"rules": [list(pair) for pair in rules_in_words(table.settings)]}
-    if hasattr(table, "samples") and hasattr(table, "flags"):
-        out.update(counts=run_counts(table, left_out), flags_raised=flag_counts(table).to_dict("records"))
+    samples, flags = getattr(table, "samples", None), getattr(table, "flags", None)
+    if isinstance(samples, pd.DataFrame) and "nca_used" in samples.columns and hasattr(table, "parameters"):
+        out["counts"] = run_counts(table, left_out)
+    if isinstance(flags, pd.DataFrame) and {"flag", "severity", "profile_id"} <= set(flags.columns):
+        out["flags_raised"] = flag_counts(table).to_dict("records")
     left = [] if left_out is None else left_out.drop(columns=["profile_id"], errors="ignore").to_dict("records")
     return {**out, "left_out": left}
 
