@@ -11,12 +11,38 @@ import numpy as np
 import pandas as pd
 
 from .blq import parse_concentrations
+from .summary_sets import bin_times, leave_out  # noqa: F401  (part of this module's interface)
 
-__all__ = ["summarize", "STATISTICS", "geometric_cv", "with_groups", "blq_positions", "mean_profiles",
-           "reference_median"]
+__all__ = ["summarize", "STATISTICS", "MEDIAN_ONLY", "NOT_RATIO_SCALE", "geometric_cv", "with_groups",
+           "blq_positions", "mean_profiles", "reference_median", "statistics_for", "leave_out", "bin_times"]
 
 #: Statistic columns of :func:`summarize`, in order.
 STATISTICS = ("N", "Mean", "SD", "CV%", "Geo. mean", "Geo. CV%", "Median", "Min", "Max")
+
+#: Times read on the sampling grid and counts: summarised as median (min-max) only (their distribution is
+#: discrete; common practice, no source).
+MEDIAN_ONLY = frozenset({"TMAX", "TLAG", "TLST", "TMIN", "LAMZNPT", "LAMZLL", "LAMZUL", "ERTMAX", "ERTLST"})
+#: Parameters that are not on a ratio scale (bounded percentages, goodness of fit, spans): arithmetic
+#: statistics only, no geometric mean or CV (common practice, no source).
+NOT_RATIO_SCALE = frozenset({"R2", "R2ADJ", "CORRXY", "LAMZSPN", "AUCPEO", "AUCPEP", "AUMCPEO", "AUCPBEO", "FLUCP",
+                             "SWING", "RCPCINT", "AURCPEO"})
+
+
+def statistics_for(code) -> tuple:
+    """The statistics of :data:`STATISTICS` reported for a parameter.
+
+    Examples
+    --------
+    >>> statistics_for("TMAX")
+    ('N', 'Median', 'Min', 'Max')
+    >>> "Geo. mean" in statistics_for("R2ADJ"), "Geo. mean" in statistics_for("CMAX")
+    (False, True)
+    """
+    if code in MEDIAN_ONLY:
+        return ("N", "Median", "Min", "Max")
+    if code in NOT_RATIO_SCALE:
+        return tuple(s for s in STATISTICS if not s.startswith("Geo."))
+    return STATISTICS
 
 
 def geometric_cv(values) -> float:
@@ -76,7 +102,7 @@ def _stats(x: np.ndarray) -> list:
     return [n, mean, sd, cv, gmean, gcv, float(np.median(x)), float(np.min(x)), float(np.max(x))]
 
 
-def summarize(table, *, by=None, parameters=None, units=None) -> pd.DataFrame:
+def summarize(table, *, by=None, parameters=None, units=None, scale_rules=False) -> pd.DataFrame:
     r"""Group summaries of parameters: one row per group and parameter.
 
     Parameters
@@ -92,6 +118,12 @@ def summarize(table, *, by=None, parameters=None, units=None) -> pd.DataFrame:
         not a grouping column and has at least one value.
     units : dict, optional
         Code -> unit text; default ``table.units`` when the table has it.
+    scale_rules : bool
+        Report only the statistics that suit each parameter's scale
+        (:func:`statistics_for`; the others are NaN): TMAX, TLAG and counts
+        get N, median, min and max only; parameters not on a ratio scale
+        (R2ADJ, AUCPEO...) get no geometric statistics.  The study records
+        use True; default False (every statistic) for earlier callers.
 
     Returns
     -------
@@ -151,7 +183,11 @@ def summarize(table, *, by=None, parameters=None, units=None) -> pd.DataFrame:
         key = key if isinstance(key, tuple) else (key,)
         for code in parameters:
             x = g[code].to_numpy(dtype=np.float64, na_value=np.nan)
-            out.append(list(key) + [code, units.get(code, "")] + _stats(x))
+            values = _stats(x)
+            if scale_rules:
+                kept = statistics_for(code)
+                values = [v if s in kept else np.nan for s, v in zip(STATISTICS, values)]
+            out.append(list(key) + [code, units.get(code, "")] + values)
     res = pd.DataFrame(out, columns=by + ["PPTESTCD", "unit"] + list(STATISTICS))
     res["N"] = res["N"].astype(int)
     return res
@@ -353,3 +389,4 @@ def reference_median(table, column, reference, parameter="TMAX") -> float:
                          f"{parameter}; values of {column} are {sorted(groups.unique())}. Set reference to one of "
                          "them, or None to skip the early-exposure cut.")
     return float(np.median(values))
+

@@ -41,7 +41,7 @@ from pkwidgets.report import CAUTION, run_analysis
 ROOT = Path(__file__).resolve().parents[1]
 NOTEBOOKS = ("single_dose", "steady_state", "partial_auc")
 REQUIRED = {"data_path", "output_dir", "columns", "time_unit", "conc_unit", "dose_unit", "route", "dose",
-            "auc_method", "blq_rules", "group_by", "selection_record"}
+            "auc_method", "blq_rules", "group_by", "selection_record", "exclude_from_summary", "significant_digits"}
 
 pytestmark = [pytest.mark.notebook, pytest.mark.slow]
 
@@ -102,15 +102,14 @@ def runs(theoph, tmp_path_factory):
     path, _ = theoph
     out = {}
     extra = {
-        "single_dose": dict(group_by=["TRT"]),
+        "single_dose": dict(group_by=["TRT"], exclude_from_summary={"T02": "vomited at 1 h"}),
         "steady_state": dict(group_by=["TRT"], tau=720.0),
         "partial_auc": dict(columns={**COMMON["columns"], "treatment": "TRT"}, group_by=["TRT"],
                             intervals=[[0, 90], [90, 1200]], reference="A"),
     }
     for name in NOTEBOOKS:
         folder = tmp_path_factory.mktemp(name)
-        params = {**COMMON, "data_path": str(path), "selection_record": str(folder / "no_record.json"),
-                  **extra[name]}
+        params = {**COMMON, "data_path": str(path), **extra[name]}  # the run's own (new) selection record
         out[name] = run_analysis(ROOT / "analyses" / f"{name}.ipynb", folder, params, timeout=300)
         out[name]["dir"] = folder
     return out
@@ -206,7 +205,9 @@ def test_html_record_is_self_contained(runs, theoph):
     assert len(tables) >= 5  # header, data check, parameters, summaries, ...
     n_subjects = df["ID"].nunique()
     png = [a for a in images if a.get("src", "").startswith("data:image/png;base64,")]
-    assert len(png) >= n_subjects + 2  # one per profile, all profiles, mean profiles
+    assert len(png) >= -(-n_subjects // 12) + 2  # profile pages of 12 panels, all profiles, mean profiles
+    for sid in df["ID"].unique():  # every subject in the record (terminal phase, listing, parameters)
+        assert f"<td>{sid}</td>" in text, sid
     for tag, attrs in parser.tags:  # nothing to fetch from a network to display the page
         for key in ("src", "href"):
             value = attrs.get(key) or ""
@@ -217,3 +218,18 @@ def test_html_record_is_self_contained(runs, theoph):
     info = json.loads((runs["single_dose"]["dir"] / "run_info.json").read_text())
     assert info["pkwidgets_version"] in text and info["date"] in text
     assert Path(runs["single_dose"]["notebook"]).exists()
+
+
+def test_profile_left_out_of_summaries_with_its_reason(runs, theoph):
+    """T02 is left out of the group summaries, listed with its reason, and kept in the per-profile results."""
+    _, df = theoph
+    folder = runs["single_dose"]["dir"]
+    summ = pd.read_csv(folder / "summaries.csv")
+    row = summ[(summ["TRT"] == "B") & (summ["PPTESTCD"] == "CMAX")].iloc[0]
+    cmax_b = [g["CP_UGL"].max() for sid, g in df[df["TRT"] == "B"].groupby("ID") if sid != "T02"]
+    assert row["N"] == len(cmax_b) and row["Mean"] == pytest.approx(statistics.fmean(cmax_b), rel=1e-12)
+    left = pd.read_csv(folder / "left_out_of_summaries.csv")
+    assert left[["ID", "reason"]].values.tolist() == [["T02", "vomited at 1 h"]]
+    assert "T02" in set(pd.read_csv(folder / "parameters_wide.csv")["ID"])  # still analysed and listed
+    text = Path(runs["single_dose"]["html"]).read_text(encoding="utf-8")
+    assert "vomited at 1 h" in text  # first page and the summaries section

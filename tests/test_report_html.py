@@ -22,6 +22,7 @@ from pathlib import Path
 
 import nbformat
 import numpy
+import pandas as pd
 import pandas
 import pint
 import pytest
@@ -142,3 +143,81 @@ def test_run_info_pins_data_and_selection_files_and_software(tmp_path):
     assert info["software"]["numpy"] == numpy.__version__ and info["software"]["python"] == platform.python_version()
     none = run_info(data, SimpleNamespace(settings={"selections": None}), notebook="x", parameters={})
     assert none["selection_file"] is None and none["selection_sha256"] is None
+
+
+# ---------------------------------------------------------------------------- report tables and first page
+# Sources: significant figures as Python's own format specification rounds them (format(x, ".3g"), the
+# reference); natural order as a person reads IDs (common practice, no source); the parameter codes of each
+# route from the CDISC PP controlled terminology (codes in pkwidgets/parameters.py); the QC sources as cited in
+# pkwidgets/qc.py (EMA 2010 bioequivalence guideline).
+
+def test_values_to_three_significant_figures_as_python_rounds_them():
+    from pkwidgets.report.tables import format_value
+
+    for x in (0.012345, 1.2345, 12.345, 123.45, 98765.4, 0.5, 2.0):
+        assert float(format_value(x)) == float(format(x, ".3g")), x
+    assert format_value(3.0, count=True) == "3" and format_value(float("nan")) == "—"
+
+
+def test_report_table_units_natural_order_and_no_index():
+    from pkwidgets.report import report_table
+
+    df = pd.DataFrame({"ID": ["S10", "S2", "S1"], "CMAX": [1.23456, 2.0, 30.0], "LAMZNPT": [3.0, 4.0, 5.0]})
+    t = report_table(df, units={"CMAX": "ng/mL", "LAMZNPT": "1"}, keys=["ID"])
+    assert list(t.frame.columns) == ["ID", "CMAX (ng/mL)", "LAMZNPT"]
+    assert t.frame["ID"].tolist() == ["S1", "S2", "S10"] and t.frame["LAMZNPT"].tolist() == ["5", "4", "3"]
+    page = t._repr_html_()
+    assert "<th>ID</th>" in page and "<th></th>" not in page  # no pandas index column
+
+
+def test_wide_tables_are_split_with_keys_repeated():
+    from pkwidgets.report import report_table
+
+    df = pd.DataFrame({"ID": ["A"], **{f"P{i}": [float(i)] for i in range(20)}})
+    blocks = report_table(df, keys=["ID"]).blocks()
+    assert len(blocks) == 3 and all(b.columns[0] == "ID" for b in blocks)
+    assert sum(len(b.columns) - 1 for b in blocks) == 20
+
+
+def test_parameter_sets_by_regimen():
+    from pkwidgets.report import parameter_set
+
+    assert {"C0", "AUCPBEO", "CLO", "VZO", "VSSO", "MRTIVIFO"} <= set(parameter_set("iv-bolus"))
+    steady = set(parameter_set("extravascular", steady_state=True))
+    assert {"AUCTAU", "CMIN", "CTROUGH", "CAVG", "FLUCP", "SWING", "CLFTAU", "AILAMZ", "ARAUC", "ARCMAX"} <= steady
+    assert not steady & {"CLFO", "VZFO", "MRTEVIFO"}  # single-dose only
+    with pytest.raises(ValueError, match="'route' option must be one of"):
+        parameter_set("oral")
+
+
+def test_rules_in_words_name_thresholds_and_sources():
+    from pkwidgets.report import rules_in_words
+
+    words = dict(rules_in_words({"route": "extravascular", "auc_method": "linear",
+                                 "blq_rules": {"before": "zero", "between": "missing", "after": "zero"},
+                                 "qc": {"max_extrapolated_pct": 20.0, "max_predose_pct": 5.0}}))
+    assert "left out" in words["BLQ rules"] and "linear trapezoidal" in words["Area rule"]
+    assert "20.0 %" in words["Reviewer checks"] and "EMA" in words["Reviewer checks"]
+
+
+def test_scalar_dose_with_the_default_dose_group_is_one_group():
+    from pkwidgets.report import analysis_setup
+
+    s = analysis_setup(data_path="d.csv", output_dir="out", columns={"subject": "ID", "time": "T", "conc": "C"},
+                       time_unit="h", conc_unit="ng/mL", dose_unit="mg", route="extravascular", dose=25,
+                       auc_method="linear", blq_rules=None, group_by=["dose"], selection_record=None)
+    assert s.group_by == [] and s.nca_options["dose"] == 25 and "one dose group" in s.notes[0]
+
+
+def test_infusion_duration_as_a_parameter_or_a_column_role():
+    # The infusion duration reaches pkwidgets.nca as a value or a column (CDISC: MRTIVIFO = MRT minus duration/2
+    # for an infusion, see pkwidgets/parameters.py); the record's set for an infusion is the IV one.
+    from pkwidgets.report import analysis_setup, parameter_set
+
+    common = dict(data_path="d.csv", output_dir="out", time_unit="h", conc_unit="ng/mL", dose_unit="mg",
+                  route="iv-infusion", dose=10, auc_method="linear", blq_rules=None, group_by=[], selection_record=None)
+    by_value = analysis_setup(columns={"subject": "ID", "time": "T", "conc": "C"}, duration=0.5, **common)
+    by_column = analysis_setup(columns={"subject": "ID", "time": "T", "conc": "C", "duration": "DUR"}, **common)
+    assert by_value.nca_options["duration"] == 0.5 and by_column.nca_options["duration"] == "DUR"
+    assert {"CLO", "VZO", "VSSO", "MRTIVIFO"} <= set(parameter_set("iv-infusion"))
+    assert "C0" not in parameter_set("iv-infusion")  # no back-extrapolated C0 for an infusion

@@ -186,3 +186,25 @@ def test_record_header_folds_fingerprints_and_keeps_them_all():
     assert all(f in text for f in fps)  # complete: every fingerprint is in the record
     assert text.index("<details>") < text.index(fps[0])  # folded: listed inside the details element
     assert "before=zero" in text and "extravascular" in text
+
+
+# Sources: TMAX and counts are read on the sampling grid, so they are summarised by median and range, and
+# geometric statistics belong to ratio-scale (log-normal) parameters only (common practice, no source); the
+# median from Python ``statistics.median``; the geometric mean from ``scipy.stats.gmean``.
+def test_statistics_follow_the_scale_of_each_parameter():
+    df = pd.DataFrame({"TMAX": [1.0, 2.0, 4.0], "LAMZNPT": [3.0, 4.0, 6.0], "R2ADJ": [0.91, 0.95, 0.99],
+                       "CMAX": [10.0, 20.0, 40.0]})
+    s = summarize(df, scale_rules=True).set_index("PPTESTCD")
+    for code in ("TMAX", "LAMZNPT"):
+        assert s.loc[code, "Median"] == statistics.median(df[code])
+        assert all(math.isnan(s.loc[code, k]) for k in ("Mean", "SD", "CV%", "Geo. mean", "Geo. CV%"))
+    assert math.isnan(s.loc["R2ADJ", "Geo. mean"]) and s.loc["R2ADJ", "Mean"] == pytest.approx(statistics.fmean(df["R2ADJ"]))
+    assert s.loc["CMAX", "Geo. mean"] == pytest.approx(stats.gmean(df["CMAX"]), rel=1e-12)
+
+
+def test_bin_times_gathers_close_actual_times():
+    # Times within 10 % of a bin's first time share the bin's median (numpy.median); common practice, no source.
+    from pkwidgets.summary import bin_times
+
+    got = bin_times([0.0, 1.0, 1.05, 2.0, 2.1, 8.0])
+    assert got.tolist() == [0.0] + [float(np.median([1.0, 1.05]))] * 2 + [float(np.median([2.0, 2.1]))] * 2 + [8.0]

@@ -11,7 +11,13 @@ One concern per module:
 - :mod:`~pkwidgets.report.html`: the HTML record from the Jinja2 template ``templates/record.html.j2``;
 - :mod:`~pkwidgets.report.arguments`: notebook parameters read as YAML and checked against the notebook;
 - :mod:`~pkwidgets.report.staging`: a run's output folder switched into place whole, with a manifest;
-- :mod:`~pkwidgets.report.execute`: papermill execution (:func:`run_analysis`).
+- :mod:`~pkwidgets.report.execute`: papermill execution (:func:`run_analysis`);
+- :mod:`~pkwidgets.report.tables`: report tables (units in headers, significant figures, natural order);
+- :mod:`~pkwidgets.report.parameter_sets`: the parameters shown, by dosing regimen;
+- :mod:`~pkwidgets.report.sections`: terminal phase, concentration listing, unused rows, mean-profile data;
+- :mod:`~pkwidgets.report.figure_pages`: individual profiles as small multiples captioned with λz;
+- :mod:`~pkwidgets.report.words`: the first page's settings in words, counts and flags;
+- :mod:`~pkwidgets.report.pdf`: the record printed to PDF by headless Chromium.
 
 Importing this package imports neither matplotlib, nbconvert, papermill nor
 the widgets; each is imported by the function that needs it.
@@ -29,11 +35,40 @@ from .notebook import (PARAMETER_HELP, ROLES, AnalysisSetup, analysis_setup, dat
                        key_parameters)
 from .provenance import CAUTION, RUN_INFO, export_results, git_commit, run_info, sha256_file, software_versions
 from .staging import FAILED, MANIFEST, staged_folder, write_manifest
+from .parameter_sets import REGIMENS, parameter_set, shown_parameters
+from .tables import Caption, ReportTable, format_value, natural_sort, report_table, summary_table
+from .sections import (concentration_listing, left_out_table, mean_n_table, mean_profile_data, parameter_table,
+                       terminal_phase_table, unused_table)
+from .figure_pages import fit_caption, plot_profile_pages
+from .words import flag_counts, rules_in_words, run_counts
+from .pdf import write_pdf
 
 #: The record header as HTML (former private name, kept for callers of the single-module report).
 _header_html = header_html
 
 __all__ = [
+    "REGIMENS",
+    "Caption",
+    "ReportTable",
+    "concentration_listing",
+    "fit_caption",
+    "flag_counts",
+    "format_value",
+    "left_out_table",
+    "mean_n_table",
+    "mean_profile_data",
+    "natural_sort",
+    "parameter_set",
+    "parameter_table",
+    "plot_profile_pages",
+    "report_table",
+    "rules_in_words",
+    "run_counts",
+    "shown_parameters",
+    "summary_table",
+    "terminal_phase_table",
+    "unused_table",
+    "write_pdf",
     "CAUTION",
     "FAILED",
     "MANIFEST",

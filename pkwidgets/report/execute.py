@@ -100,7 +100,7 @@ def _finish_run_info(stage, final) -> None:
     write_atomic(path, json.dumps(info, indent=1))
 
 
-def run_analysis(notebook, output_dir, parameters=None, *, kernel_name="python3", timeout=600) -> dict:
+def run_analysis(notebook, output_dir, parameters=None, *, kernel_name="python3", timeout=600, pdf=False) -> dict:
     """Execute an analysis notebook with papermill and write its HTML record, as one complete run.
 
     Parameters
@@ -118,6 +118,8 @@ def run_analysis(notebook, output_dir, parameters=None, *, kernel_name="python3"
         current folder (the kernel runs in the notebook's folder, where the
         defaults point); no ``selection_record`` means
         ``terminal_selection.json`` in ``output_dir``, kept across runs.
+    pdf : bool
+        Also print the record to PDF (headless Chromium); its path is under ``pdf``.
 
     Returns
     -------
@@ -144,10 +146,11 @@ def run_analysis(notebook, output_dir, parameters=None, *, kernel_name="python3"
         _execute(notebook, os.path.join(stage, f"{stem}.ipynb"), params, kernel_name=kernel_name,
                  timeout=timeout)
         _finish_run_info(stage, final)
-        write_record(os.path.join(stage, f"{stem}.ipynb"))
+        write_record(os.path.join(stage, f"{stem}.ipynb"), pdf=pdf)
     csvs = sorted(os.path.join(final, f) for f in os.listdir(final) if f.endswith(".csv"))
     return {"notebook": os.path.join(final, f"{stem}.ipynb"), "html": os.path.join(final, f"{stem}.html"),
-            "manifest": os.path.join(final, MANIFEST), "csv": csvs}
+            "manifest": os.path.join(final, MANIFEST), "csv": csvs,
+            **({"pdf": os.path.join(final, f"{stem}.pdf")} if pdf else {})}
 
 
 def refresh_stored_outputs(notebook, *, timeout=600) -> str:

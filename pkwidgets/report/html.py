@@ -80,7 +80,7 @@ def find_run_info(notebook_path, nb=None) -> dict:
         return json.load(fh)
 
 
-def write_record(notebook_path, html_path=None, *, info=None, hide_code=True) -> str:
+def write_record(notebook_path, html_path=None, *, info=None, hide_code=True, pdf=False) -> str:
     """Write the offline HTML record of an executed analysis notebook.
 
     Parameters
@@ -95,6 +95,9 @@ def write_record(notebook_path, html_path=None, *, info=None, hide_code=True) ->
     hide_code : bool
         Leave code cells and prompts out of the record (default); the
         executed notebook keeps them.
+    pdf : bool
+        Also print the record to PDF beside it (headless Chromium,
+        :func:`~pkwidgets.report.pdf.write_pdf`).
 
     Returns
     -------
@@ -122,4 +125,8 @@ def write_record(notebook_path, html_path=None, *, info=None, hide_code=True) ->
     resources = {"pkw_info": info, "metadata": {"name": f"Study record — {info.get('notebook', '')}"}}
     body, _ = exporter.from_notebook_node(nb, resources=resources)
     write_atomic(html_path, body)
+    if pdf:
+        from .pdf import write_pdf
+
+        write_pdf(html_path)
     return html_path

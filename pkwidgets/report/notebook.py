@@ -20,8 +20,10 @@ __all__ = ["ROLES", "PARAMETER_HELP", "AnalysisSetup", "analysis_setup", "displa
 
 #: Column roles an analysis notebook's ``columns`` parameter may name; the first three are required.
 ROLES = ("subject", "time", "conc", "dose", "period", "day", "treatment", "analyte", "blq", "lloq",
-         "nominal_time", "tau")
+         "nominal_time", "tau", "duration")
 _KEY_ROLES = ("period", "day", "treatment", "analyte")
+#: File name of a run's own selection record (may be new); a record of any other name must exist.
+_OWN_RECORD = "terminal_selection.json"
 
 #: What each shared notebook parameter means (shown by ``pkwidgets params`` when the notebook has no comment).
 PARAMETER_HELP = {
@@ -32,10 +34,14 @@ PARAMETER_HELP = {
     "conc_unit": "unit of the concentration column, e.g. ng/mL",
     "dose_unit": "unit of the dose, e.g. mg",
     "route": "extravascular, iv-bolus or iv-infusion",
+    "duration": "infusion duration in time units (route iv-infusion), or map the 'duration' role to a column",
+    "exclude_from_summary": "profiles left out of the summaries and mean profiles, key -> reason, e.g. {S3: vomited at 1 h}",
+    "significant_digits": "significant figures of the values shown in the record (CSV exports keep full precision)",
     "dose": "one dose for every profile (a number) when columns names no dose column",
     "auc_method": "linear, lin-up/log-down or lin-log",
     "blq_rules": "what a BLQ sample counts as before the first, between and after the last measurable sample",
-    "group_by": "column(s) grouping the summaries; [] or null for one group of all profiles",
+    "group_by": "column(s) grouping the summaries; [] or null for one group of all profiles (dose given as one "
+                "number: the dose group is that number)",
     "selection_record": "terminal-phase selection record (JSON); null: terminal_selection.json in the output folder",
     "interactive": "true to open the terminal-phase navigator (needs a live kernel, not an unattended run)",
     "tau": "dosing interval at steady state, in time units",
@@ -81,6 +87,8 @@ class AnalysisSetup:
     selection_record: str
     nca_options: dict
     parameters: dict = field(default_factory=dict)
+    nominal_time: str | None = None
+    notes: list = field(default_factory=list)
 
     @property
     def shown_keys(self) -> list:
@@ -106,14 +114,28 @@ def _check_roles(columns, data_path) -> dict:
     return {r: c for r, c in columns.items() if c}
 
 
-def _nca_options(roles, by, *, dose, **options) -> dict:
+def _nca_options(roles, by, *, dose, duration=None, **options) -> dict:
     """Keyword arguments for :func:`pkwidgets.nca` from the column roles (a dose column wins over ``dose``)."""
-    return dict(by=by, time=roles["time"], conc=roles["conc"], dose=roles.get("dose") or dose,
-                blq=roles.get("blq"), lloq=roles.get("lloq"), **options)
+    out = dict(by=by, time=roles["time"], conc=roles["conc"], dose=roles.get("dose") or dose,
+               blq=roles.get("blq"), lloq=roles.get("lloq"), **options)
+    if roles.get("duration") or duration is not None:
+        out["duration"] = roles.get("duration") or duration
+    return out
+
+
+def _groups(group_by, roles, dose, dose_unit) -> tuple:
+    """Summary groups, with a ``dose`` group dropped when the dose is one number for all (one group then)."""
+    group_by = [group_by] if isinstance(group_by, str) else list(group_by or [])
+    notes = []
+    if "dose" in group_by and not roles.get("dose") and dose is not None:
+        group_by = [g for g in group_by if g != "dose"]
+        notes.append(f"every profile has the dose given as one number ({dose} {dose_unit or ''}".rstrip()
+                     + "): one dose group, so group_by 'dose' adds no group.")
+    return group_by, notes
 
 
 def analysis_setup(*, data_path, output_dir, columns, time_unit, conc_unit, dose_unit, route, dose, auc_method,
-                   blq_rules, group_by, selection_record, nca_extra=None, **own) -> AnalysisSetup:
+                   blq_rules, group_by, selection_record, nca_extra=None, duration=None, **own) -> AnalysisSetup:
     """Read an analysis notebook's parameters into column roles and :func:`pkwidgets.nca` options.
 
     Parameters
@@ -125,11 +147,19 @@ def analysis_setup(*, data_path, output_dir, columns, time_unit, conc_unit, dose
     time_unit, conc_unit, dose_unit, route, dose, auc_method, blq_rules
         Passed to :func:`pkwidgets.nca` (``dose`` is used when ``columns`` names no dose column).
     group_by : str, list of str or None
-        Summary groups; None or ``[]`` for one group of all profiles.
+        Summary groups; None or ``[]`` for one group of all profiles.  A
+        ``dose`` group with the dose given as one number (no dose column) is
+        dropped with a note: every profile is in the one dose group.
+    duration : float, optional
+        Infusion duration (``route="iv-infusion"``) when ``columns`` maps no
+        ``duration`` column.
     selection_record : str or None
         Terminal-phase record; None means ``terminal_selection.json`` in
         ``output_dir`` (a new record when it does not exist yet).  A record
-        named here must exist (a mistyped path is an error).
+        of another name must exist (a mistyped path is an error); one named
+        ``terminal_selection.json`` is a run's own record and may be new
+        (:func:`~pkwidgets.report.run_analysis` keeps it in the final output
+        folder).
     nca_extra : dict, optional
         Further :func:`pkwidgets.nca` options of the notebook (``tau``, ``occasion``...).
     **own
@@ -158,24 +188,27 @@ def analysis_setup(*, data_path, output_dir, columns, time_unit, conc_unit, dose
     ...                auc_method="linear", blq_rules=None, group_by=None, selection_record=None)
     Traceback (most recent call last):
     ...
-    ValueError: columns: unknown role(s) ['subjct']; roles are subject, time, conc, dose, period, day, treatment, analyte, blq, lloq, nominal_time, tau. Required role(s) ['subject'] missing: map each to its column name in d.csv, e.g. columns={'subject': 'ID', ...}.
+    ValueError: columns: unknown role(s) ['subjct']; roles are subject, time, conc, dose, period, day, treatment, analyte, blq, lloq, nominal_time, tau, duration. Required role(s) ['subject'] missing: map each to its column name in d.csv, e.g. columns={'subject': 'ID', ...}.
     """
     roles = _check_roles(columns, data_path)
     by = [roles["subject"]] + [roles[r] for r in _KEY_ROLES if r in roles]
-    group_by = [group_by] if isinstance(group_by, str) else list(group_by or [])
-    default_record = not selection_record  # the output folder's own record may not exist yet; a named one must
+    group_by, notes = _groups(group_by, roles, dose, dose_unit)
+    # the run's own record (terminal_selection.json, where run_analysis keeps it) may not exist yet; another must
+    default_record = not selection_record or os.path.basename(os.fspath(selection_record)) == _OWN_RECORD
     selection_record = selection_record or os.path.join(output_dir, "terminal_selection.json")
     options = _nca_options(roles, by, dose=dose, units={"time": time_unit, "conc": conc_unit, "dose": dose_unit},
                            route=route, auc_method=auc_method, blq_rules=blq_rules, selections=selection_record,
-                           selections_new=default_record)
+                           selections_new=default_record, duration=duration)
     options.update(nca_extra or {})
     parameters = dict(data_path=data_path, output_dir=output_dir, columns=columns, time_unit=time_unit,
                       conc_unit=conc_unit, dose_unit=dose_unit, route=route, dose=dose, auc_method=auc_method,
-                      blq_rules=blq_rules, group_by=group_by, selection_record=selection_record, **own)
+                      blq_rules=blq_rules, group_by=group_by, selection_record=selection_record,
+                      **({"duration": duration} if duration is not None or "duration" in own else {}), **own)
     return AnalysisSetup(by=by, time=roles["time"], conc=roles["conc"], blq=roles.get("blq"),
                          mean_time=roles.get("nominal_time") or roles["time"], group_by=group_by,
                          group_units={roles["dose"]: dose_unit} if roles.get("dose") and dose_unit else {},
-                         selection_record=selection_record, nca_options=options, parameters=parameters)
+                         selection_record=selection_record, nca_options=options, parameters=parameters,
+                         nominal_time=roles.get("nominal_time"), notes=notes)
 
 
 def display_defaults() -> None:

@@ -21,6 +21,7 @@ import platform
 import subprocess
 
 import numpy as np
+import pandas as pd
 
 from ..io import write_atomic
 
@@ -130,7 +131,31 @@ def _selection_file(settings) -> dict:
     return {"selection_file": os.path.abspath(os.fspath(path)), "selection_sha256": sha256_file(path)}
 
 
-def run_info(data_path, table, *, notebook, parameters, now=None) -> dict:
+def _first_page(table, left_out) -> dict:
+    """Rules in words, counts, flags raised and profiles left out (for a result with samples and flags)."""
+    from .words import flag_counts, rules_in_words, run_counts
+
+    out = {"rules": [list(pair) for pair in rules_in_words(table.settings)]}
+    samples, flags = getattr(table, "samples", None), getattr(table, "flags", None)
+    if isinstance(samples, pd.DataFrame) and "nca_used" in samples.columns and hasattr(table, "parameters"):
+        out["counts"] = run_counts(table, left_out)
+    if isinstance(flags, pd.DataFrame) and {"flag", "severity", "profile_id"} <= set(flags.columns):
+        out["flags_raised"] = flag_counts(table).to_dict("records")
+    left = [] if left_out is None else left_out.drop(columns=["profile_id"], errors="ignore").to_dict("records")
+    return {**out, "left_out": left}
+
+
+def _study_name(table):
+    """The single value of a ``study`` or ``STUDYID`` column of the input rows, else None."""
+    for name in ("study", "STUDYID", "studyid", "Study"):
+        if name in getattr(getattr(table, "samples", None), "columns", ()):
+            values = table.samples[name].dropna().astype(str).unique()
+            if len(values) == 1:
+                return values[0]
+    return None
+
+
+def run_info(data_path, table, *, notebook, parameters, now=None, left_out=None, study=None) -> dict:
     """The record header of one run.
 
     Parameters
@@ -145,6 +170,12 @@ def run_info(data_path, table, *, notebook, parameters, now=None) -> dict:
         The notebook's parameter values.
     now : datetime, optional
         Time stamp; default the current UTC time.
+    left_out : DataFrame, optional
+        Profiles left out of the summaries with their reasons
+        (:func:`pkwidgets.summary.leave_out`).
+    study : str, optional
+        Study name for the first page; default the ``study``/``STUDYID``
+        column of the data when it holds one value.
 
     Returns
     -------
@@ -152,13 +183,17 @@ def run_info(data_path, table, *, notebook, parameters, now=None) -> dict:
         ``notebook``, ``data_file``, ``data_sha256``, ``selection_file``,
         ``selection_sha256``, ``pkwidgets_version``, ``software`` (see
         :func:`software_versions`), ``date`` (ISO 8601, UTC), ``parameters``,
-        ``settings``, ``caution``.
+        ``settings``, ``caution``, and for the first page ``study``,
+        ``rules`` (the settings in words), ``counts``, ``flags_raised`` and
+        ``left_out``.
     """
     now = now or _dt.datetime.now(_dt.timezone.utc)
     settings = {k: v for k, v in table.settings.items() if k != "source"}
     software = software_versions()
     return _plain({
         "notebook": notebook,
+        "study": study if study is not None else _study_name(table),
+        **_first_page(table, left_out),
         "data_file": os.path.abspath(os.fspath(data_path)),
         "data_sha256": sha256_file(data_path),
         **_selection_file(settings),

@@ -1,0 +1,107 @@
+"""The settings of a run in words, its counts and the flags it raised: the record's first page.
+
+:func:`rules_in_words` turns the settings of a result (route, area rule,
+BLQ rules, terminal-phase rule, reviewer-check thresholds with their
+sources) into sentences a reviewer reads without knowing the option names;
+:func:`run_counts` and :func:`flag_counts` give the numbers of the first page.
+
+Results support qualified review; follow local regulations and SOPs.
+"""
+
+from __future__ import annotations
+
+import pandas as pd
+
+__all__ = ["rules_in_words", "run_counts", "flag_counts", "QC_SOURCES"]
+
+_ROUTES = {
+    "extravascular": "extravascular (oral or other absorption route)",
+    "iv-bolus": "intravenous bolus (concentration at dose time C0 back-extrapolated)",
+    "iv-infusion": "intravenous infusion",
+}
+_AREAS = {
+    "linear": "linear trapezoidal rule throughout",
+    "lin-up/log-down": "linear trapezoidal rule while concentrations rise or stay level, logarithmic while they fall",
+    "lin-log": "linear trapezoidal rule up to CMAX, logarithmic after it where concentrations fall",
+}
+_BLQ = {"zero": "counted as 0", "missing": "left out", "half-lloq": "set to half the LLOQ", "lloq": "set to the LLOQ"}
+_LAMBDA_Z = {
+    "adjusted-r2": "the window of the last 3 or more points after CMAX with the highest adjusted R² "
+                   "(ties within 1e-4 go to the window with more points)",
+    "two-tmax": "all points at or after twice TMAX (at least 3)",
+    "last-n": "the last n points after CMAX",
+    "aicc": "the window with the lowest small-sample Akaike criterion (at least 4 points)",
+    "tail-extension": "the last 3 points, extended backwards until a run of points lies off the line "
+                      "(pkwidgets' own rule)",
+}
+#: Reviewer-check threshold -> (sentence, source).
+QC_SOURCES = {
+    "max_extrapolated_pct": ("AUC extrapolated beyond the last sample above {} %",
+                             "EMA bioequivalence guideline CPMP/EWP/QWP/1401/98 Rev.1 (2010)"),
+    "min_r2adj": ("adjusted R² of the λz fit below {}", "common practice, no source"),
+    "min_points": ("λz fit on fewer than {} points", "common practice, no source"),
+    "min_span": ("λz fit interval shorter than {} half-lives", "common practice, no source"),
+    "max_predose_pct": ("pre-dose concentration above {} % of CMAX (single dose)",
+                        "EMA bioequivalence guideline (2010)"),
+}
+
+
+def _blq_text(rules) -> str:
+    rules = dict(rules or {})
+    parts = [f"{where} the first measurable concentration: {_BLQ.get(rules.get(key), rules.get(key))}"
+             for where, key in (("before", "before"),)]
+    parts.append(f"between measurable concentrations: {_BLQ.get(rules.get('between'), rules.get('between'))}")
+    parts.append(f"after the last measurable concentration: {_BLQ.get(rules.get('after'), rules.get('after'))}")
+    return "BLQ samples " + "; ".join(parts) + "."
+
+
+def rules_in_words(settings) -> list:
+    """The rules of a run as ``(topic, sentence)`` pairs.
+
+    Parameters
+    ----------
+    settings : dict
+        ``NCAResult.settings`` (or the ``settings`` of ``run_info.json``).
+
+    Examples
+    --------
+    >>> dict(rules_in_words({"route": "iv-bolus", "auc_method": "linear"}))["Area rule"]
+    'linear trapezoidal rule throughout (AUC and AUMC).'
+    """
+    options = settings.get("options") or {}
+    route = settings.get("route") or options.get("route")
+    out = [("Route", _ROUTES.get(route, str(route)) + ".")]
+    if settings.get("duration") is not None:
+        out.append(("Infusion duration", f"{settings['duration']} (time unit of the data)."))
+    if settings.get("tau") is not None:
+        out.append(("Dosing interval", f"steady state, tau = {settings['tau']} (time unit of the data)."))
+    method = settings.get("auc_method") or options.get("auc_method")
+    out.append(("Area rule", f"{_AREAS.get(method, str(method))} (AUC and AUMC)."))
+    out.append(("BLQ rules", _blq_text(settings.get("blq_rules") or options.get("blq_rules"))))
+    rule = options.get("lambda_z_rule", "adjusted-r2")
+    out.append(("Terminal phase (λz)", f"automatic unless chosen by hand: {_LAMBDA_Z.get(rule, rule)}; "
+                                       "log-linear least squares on ln C."))
+    qc = settings.get("qc") or options.get("qc") or {}
+    checks = [f"{text.format(qc[name])} ({source})" for name, (text, source) in QC_SOURCES.items() if name in qc]
+    if checks:
+        out.append(("Reviewer checks", "a profile is flagged when: " + "; ".join(checks) + "."))
+    return out
+
+
+def run_counts(result, left_out=None) -> dict:
+    """Profiles, rows read, rows used and not used, profiles left out of the summaries."""
+    samples = result.samples
+    used = int(samples["nca_used"].sum())
+    return {"profiles": int(len(result.parameters)), "rows in file": int(len(samples)), "rows used": used,
+            "rows not used": int(len(samples) - used),
+            "profiles left out of summaries": 0 if left_out is None else int(len(left_out))}
+
+
+def flag_counts(result) -> pd.DataFrame:
+    """Flags raised: flag, severity, number of profiles, one row per flag (most frequent first)."""
+    flags = result.flags
+    if flags is None or not len(flags):
+        return pd.DataFrame(columns=["flag", "severity", "profiles"])
+    out = (flags.groupby(["flag", "severity"], sort=False)["profile_id"].nunique().rename("profiles")
+           .reset_index().sort_values(["profiles", "flag"], ascending=[False, True], kind="stable"))
+    return out.reset_index(drop=True)
