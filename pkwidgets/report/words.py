@@ -31,8 +31,10 @@ _LAMBDA_Z = {
     "two-tmax": "all points at or after twice TMAX (at least 3)",
     "last-n": "the last n points after CMAX",
     "aicc": "the window with the lowest small-sample Akaike criterion (at least 4 points)",
-    "tail-extension": "the last 3 points, extended backwards until a run of points lies off the line "
-                      "(pkwidgets' own rule)",
+    "tail-extension": "the last 3 points after CMAX, extended backwards while earlier points stay on the "
+                      "line within its own prediction noise (a run of 4 points off the line stops it and the "
+                      "edge point of the bend stays out; not before 2 x TMAX for extravascular doses); "
+                      "pkwidgets' own rule, measured in bench/terminal_accuracy.py",
 }
 #: Reviewer-check threshold -> (sentence, source).
 QC_SOURCES = {
@@ -43,6 +45,11 @@ QC_SOURCES = {
     "min_span": ("λz fit interval shorter than {} half-lives", "common practice, no source"),
     "max_predose_pct": ("pre-dose concentration above {} % of CMAX (single dose)",
                         "EMA bioequivalence guideline (2010)"),
+    "max_back_extrapolated_pct": ("IV bolus: back-extrapolated share of AUC (AUCPBEO) above {} %",
+                                  "common practice, no source"),
+    "max_rule_disagreement": ("the half-lives of two selection rules differ by more than {:.0%}",
+                              "common practice, no source; the share is our choice"),
+    "max_half_life_ratio": ("the 95 % half-life interval is wider than {}-fold or unbounded", "our choice"),
 }
 
 
@@ -74,11 +81,14 @@ def rules_in_words(settings) -> list:
     if settings.get("duration") is not None:
         out.append(("Infusion duration", f"{settings['duration']} (time unit of the data)."))
     if settings.get("tau") is not None:
-        out.append(("Dosing interval", f"steady state, tau = {settings['tau']} (time unit of the data)."))
+        window = options.get("predose_window", 0.1)
+        out.append(("Dosing interval", f"steady state, tau = {settings['tau']} (time unit of the data); a pre-dose "
+                                       f"sample stands at dose time when taken at most {window:g} x tau before "
+                                       "the dose (common practice, no source)."))
     method = settings.get("auc_method") or options.get("auc_method")
     out.append(("Area rule", f"{_AREAS.get(method, str(method))} (AUC and AUMC)."))
     out.append(("BLQ rules", _blq_text(settings.get("blq_rules") or options.get("blq_rules"))))
-    rule = options.get("lambda_z_rule", "adjusted-r2")
+    rule = options.get("lambda_z_rule", "tail-extension")
     out.append(("Terminal phase (λz)", f"automatic unless chosen by hand: {_LAMBDA_Z.get(rule, rule)}; "
                                        "log-linear least squares on ln C."))
     qc = settings.get("qc") or options.get("qc") or {}
