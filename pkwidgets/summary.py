@@ -122,8 +122,10 @@ def summarize(table, *, by=None, parameters=None, units=None, scale_rules=False)
         Report only the statistics that suit each parameter's scale
         (:func:`statistics_for`; the others are NaN): TMAX, TLAG and counts
         get N, median, min and max only; parameters not on a ratio scale
-        (R2ADJ, AUCPEO...) get no geometric statistics.  The study records
-        use True; default False (every statistic) for earlier callers.
+        (R2ADJ, AUCPEO...) get no geometric statistics, and per-profile
+        confidence bounds (``*_LOWER95``, ``*_UPPER95``) are not summarised
+        (a mean of interval ends estimates nothing).  The study records use
+        True; default False (every statistic) for earlier callers.
 
     Returns
     -------
@@ -174,6 +176,8 @@ def summarize(table, *, by=None, parameters=None, units=None, scale_rules=False)
         if bad:
             raise KeyError(f"summarize: parameter column(s) {bad} not in the table; numeric columns are "
                            f"{[c for c in table.columns if pd.api.types.is_numeric_dtype(table[c])]}.")
+    if scale_rules:
+        parameters = [c for c in parameters if not str(c).endswith(("_LOWER95", "_UPPER95"))]
     units = getattr(table, "units", None) if units is None else units
     units = units if isinstance(units, dict) else {}
     frame = table

@@ -208,3 +208,16 @@ def test_bin_times_gathers_close_actual_times():
 
     got = bin_times([0.0, 1.0, 1.05, 2.0, 2.1, 8.0])
     assert got.tolist() == [0.0] + [float(np.median([1.0, 1.05]))] * 2 + [float(np.median([2.0, 2.1]))] * 2 + [8.0]
+
+
+def test_confidence_bounds_are_not_summarised_under_the_scale_rules():
+    # a mean of per-profile interval ends estimates nothing (common practice, no source): left out of the
+    # summaries that the records show; the statistics of the parameters themselves are those of the
+    # Python statistics module
+    import statistics
+
+    df = pd.DataFrame({"g": [1, 1, 1], "LAMZ": [0.1, 0.2, 0.3], "LAMZ_LOWER95": [0.05, 0.1, 0.2]})
+    out = summarize(df, by="g", scale_rules=True)
+    assert list(out["PPTESTCD"]) == ["LAMZ"]
+    assert out["Mean"].iloc[0] == pytest.approx(statistics.fmean([0.1, 0.2, 0.3]))
+    assert "LAMZ_LOWER95" in set(summarize(df, by="g")["PPTESTCD"])  # without the rules: every column
