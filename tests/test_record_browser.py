@@ -41,7 +41,7 @@ def _hand_choice(tmp) -> Path:
     data = ROOT / "data" / "demo_single_dose.csv"
     path = tmp / "selection.json"
     res = pk.nca(str(data), by=["subject"], time="time", conc="conc", dose="dose", lloq="lloq",
-                 units={"time": "h", "conc": "ng/mL", "dose": "mg"}, auc_method="lin-up/log-down",
+                 units={"time": "h", "conc": "ng/mL", "dose": "mg"}, auc_method="linear",
                  selections=str(path), selections_new=True)
     fp = res.settings["selections"]["fingerprints"][res.profile_id("S101")]
     rec = pk.SelectionRecord(str(path))
