@@ -6,7 +6,7 @@ them (:func:`check_pp`) and writes SAS transport version 5 (``.xpt``, with
 pyreadstat) or CSV, chosen by the file's suffix.
 
 Variables, order, labels and core status follow the PP domain of the CDISC
-SDTM Implementation Guide 3.4 (seen in a transcription of the SDTMIG 3.4
+SDTM Implementation Guide 3.4 (seen in a public copy of the SDTMIG 3.4
 PP specification): Req = STUDYID, DOMAIN, USUBJID, PPSEQ, PPTESTCD, PPTEST;
 PPCAT "should be the name of the analyte in PCTEST"; PPRFTDTC is the
 reference date-time (the SDTMIG's own example table, and the pharmaverse

@@ -19,7 +19,7 @@ import subprocess
 import sys
 from pathlib import Path
 
-from _voila import _JUPYTER_DIRS, _wait_port, free_port
+from _voila import _wait_port, free_port, jupyter_env
 
 #: User settings written for the test server (plugin id -> settings).
 LAB_SETTINGS = {
@@ -57,10 +57,7 @@ def lab_server(root, state_dir, *, token="pkwlab", timeout=90):
         If the server exits or does not open its port in time (the message names the log file).
     """
     root, state_dir = Path(root), Path(state_dir)
-    env = dict(os.environ)
-    for var, sub in _JUPYTER_DIRS:
-        env[var] = str(state_dir / sub)
-    env["JUPYTER_PATH"] = str(Path(sys.prefix) / "share" / "jupyter")
+    env = jupyter_env(state_dir)
     env["JUPYTERLAB_SETTINGS_DIR"] = str(state_dir / "lab-settings")
     _write_settings(state_dir / "lab-settings")
     port = free_port()

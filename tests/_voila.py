@@ -45,6 +45,15 @@ def _wait_port(port, proc, log_path, timeout):
     raise RuntimeError(f"the server did not open port {port} within {timeout} s; see {log_path}")
 
 
+def jupyter_env(state_dir) -> dict:
+    """The environment of a test server: every Jupyter folder inside ``state_dir``, none in $HOME."""
+    env = dict(os.environ)
+    for var, sub in _JUPYTER_DIRS:
+        env[var] = str(Path(state_dir) / sub)
+    env["JUPYTER_PATH"] = str(Path(sys.prefix) / "share" / "jupyter")
+    return env
+
+
 @contextlib.contextmanager
 def voila_server(notebook, state_dir, *, token="pkwtest", timeout=60):
     """Serve ``notebook`` with Voilà on 127.0.0.1; yield the page URL; stop the server on exit.
@@ -66,10 +75,7 @@ def voila_server(notebook, state_dir, *, token="pkwtest", timeout=60):
         If the server exits or does not open its port in time (the message names the log file).
     """
     notebook, state_dir = Path(notebook), Path(state_dir)
-    env = dict(os.environ)
-    for var, sub in _JUPYTER_DIRS:
-        env[var] = str(state_dir / sub)
-    env["JUPYTER_PATH"] = str(Path(sys.prefix) / "share" / "jupyter")
+    env = jupyter_env(state_dir)
     port = free_port()
     log_path = state_dir / "voila.log"
     with open(log_path, "w") as log:

@@ -1,7 +1,7 @@
 """The SDTM PP domain: to_pp, check_pp, write_pp.
 
 Sources (outside the project):
-- CDISC SDTMIG 3.4, PP domain specification [seen, in a public transcription
+- CDISC SDTMIG 3.4, PP domain specification [seen, in a public copy
   of the SDTMIG 3.4 domain specs]: variables and labels; core "Req" for
   STUDYID, DOMAIN, USUBJID, PPSEQ, PPTESTCD, PPTEST; PPTESTCD at most 8
   characters (letters, digits, underscores, not starting with a digit);
