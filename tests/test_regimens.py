@@ -309,3 +309,18 @@ def test_first_occasion_has_nothing_before_its_dose():
     assert first.parameters["AUCTAU"] == pytest.approx(trapezoid(np.r_[0.0, day1], np.r_[0.0, t]), rel=1e-12)
     assert later.parameters["CMIN"] == pytest.approx(1.6 * day1.min(), rel=1e-12)
     assert "predose_imputed" in set(later.flags["flag"])
+
+
+def test_steady_state_volume_and_dose_normalised_area():
+    # one-compartment oral dosing every tau, at steady state (superposition; Gibaldi & Perrier, from memory):
+    # AUCtau = F*Dose/CL and the terminal rate is k, so Dose/(lambda_z*AUCtau) = CL/k = V, and AUCtau/Dose = 1/CL.
+    # Dense sampling with the log-down rule makes the NCA areas close to the exact ones.
+    tau, ka, dose, v, cl = 24.0, 2.0, 100.0, 10.0, 1.0
+    k = cl / v
+    t = np.linspace(0.0, tau, 241)
+    c = dose / v * ka / (ka - k) * (np.exp(-k * t) / (1 - np.exp(-k * tau)) - np.exp(-ka * t) / (1 - np.exp(-ka * tau)))
+    r = pk.nca_profile(t, c, dose=dose, tau=tau, auc_method="lin-up/log-down", terminal=(12.0, 24.0))
+    assert r["AUCTAU"] == pytest.approx(dose / cl, rel=1e-3)
+    assert r["AUCTAUD"] == pytest.approx(r["AUCTAU"] / dose, rel=1e-15)  # CDISC: AUCTAU normalised by dose
+    assert r["VZFTAU"] == pytest.approx(v, rel=1e-3)
+    assert "VZTAU" not in r.index  # intravascular only
