@@ -363,7 +363,7 @@ def output_codes(options: NCAOptions | None = None, *, partial_names=None, has_d
     >>> output_codes(NCAOptions(route="iv-bolus"))[:6]
     ['CMAX', 'TMAX', 'CLST', 'TLST', 'C0', 'AUCLST']
     >>> output_codes(NCAOptions(tau=24.0, partial=[(0, 4)]))[-3:]
-    ['CLFTAU', 'AILAMZ', 'AUCINT_0-4']
+    ['AUCTAUD', 'AILAMZ', 'AUCINT_0-4']
     """
     options = NCAOptions() if options is None else options
     steady = options.tau is not None if has_tau is None else bool(has_tau)
