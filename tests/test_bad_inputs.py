@@ -296,23 +296,24 @@ def _check_zero_inside_log(res):
     log = [(8, 12, 3, 1.5), (12, 24, 1.5, 0.4)]
     expected = sum((t2 - t1) * (c1 + c2) / 2 for t1, t2, c1, c2 in lin)
     expected += sum((c1 - c2) * (t2 - t1) / math.log(c1 / c2) for t1, t2, c1, c2 in log)
-    assert res.loc[res["subject"] == 1, "AUCLST"].iloc[0] == pytest.approx(expected, rel=1e-12)
+    assert res.profile(1).parameters["AUCLST"] == pytest.approx(expected, rel=1e-12)
 
 
 def _check_scaled(factor):
     def check(res):
         # linearity of the integral: AUC(k*C) = k*AUC(C); lambda z unchanged (log of k*C shifts by ln k)
-        ref = nca(frame(), by="subject", auc_method="lin-up/log-down")
-        np.testing.assert_allclose(res["AUCLST"], factor * ref["AUCLST"], rtol=1e-12)
-        np.testing.assert_allclose(res["AUCIFO"], factor * ref["AUCIFO"], rtol=1e-12)
-        np.testing.assert_allclose(res["CMAX"], factor * ref["CMAX"], rtol=1e-15)
-        np.testing.assert_allclose(res["LAMZ"], ref["LAMZ"], rtol=1e-10)
-        assert np.isfinite(res["AUCIFO"]).all()
+        ref = nca(frame(), by="subject", auc_method="lin-up/log-down").parameters
+        got = res.parameters
+        np.testing.assert_allclose(got["AUCLST"], factor * ref["AUCLST"], rtol=1e-12)
+        np.testing.assert_allclose(got["AUCIFO"], factor * ref["AUCIFO"], rtol=1e-12)
+        np.testing.assert_allclose(got["CMAX"], factor * ref["CMAX"], rtol=1e-15)
+        np.testing.assert_allclose(got["LAMZ"], ref["LAMZ"], rtol=1e-10)
+        assert np.isfinite(got["AUCIFO"]).all()
     return check
 
 
 def _check_single_sample(res):
-    r = res.loc[res["subject"] == 2].iloc[0]
+    r = res.profile(2).parameters
     assert r["CMAX"] == 4.0 and r["TMAX"] == 1.0
     assert r["AUCLST"] == pytest.approx(2.0)  # 0 added at dose time: (1 - 0) * (0 + 4) / 2
     assert math.isnan(r["LAMZ"]) and math.isnan(r["AUCIFO"])
@@ -321,10 +322,10 @@ def _check_single_sample(res):
 def _check_blq_after_tlast(res):
     # a BLQ sample after TLST (rule 'zero') leaves AUCLST as without it, and adds a linear
     # segment to AUCALL: (36 - 24) * (0.4 + 0) / 2 = 2.4
-    ref = nca(frame(), by="subject")
-    r1 = res["subject"] == 1
-    assert res.loc[r1, "AUCLST"].iloc[0] == pytest.approx(ref.loc[r1, "AUCLST"].iloc[0], rel=1e-15)
-    assert res.loc[r1, "AUCALL"].iloc[0] == pytest.approx(ref.loc[r1, "AUCLST"].iloc[0] + 2.4, rel=1e-12)
+    ref = nca(frame(), by="subject").profile(1).parameters
+    got = res.profile(1).parameters
+    assert got["AUCLST"] == pytest.approx(ref["AUCLST"], rel=1e-15)
+    assert got["AUCALL"] == pytest.approx(ref["AUCLST"] + 2.4, rel=1e-12)
 
 
 def _with_note(notes, default="ok"):
@@ -335,10 +336,10 @@ def _with_note(notes, default="ok"):
 
 def _check_lines(res, last_line):
     # every input row is one account row, numbered by the line it starts on (RFC 4180 records)
-    lines = res.rows["line"].tolist()
+    lines = res.samples["nca_line"].tolist()
     assert lines[-1] == last_line and len(lines) == len(GOOD_ROWS) and lines == sorted(lines)
     ref = nca(frame(), by="subject")
-    np.testing.assert_array_equal(res["AUCLST"].to_numpy(), ref["AUCLST"].to_numpy())
+    np.testing.assert_array_equal(res.parameters["AUCLST"].to_numpy(), ref.parameters["AUCLST"].to_numpy())
 
 
 FLAGGED = [

@@ -139,14 +139,14 @@ def test_replay_reproduces_window_and_exclusions(theoph, tmp_path):
     res = nca(theoph, **OPTS, selections=tmp_path / "sel.json")
     s1 = theoph[(theoph["Subject"] == 1) & (theoph["Time"] >= 3.0)]
     ref = scipy.stats.linregress(s1["Time"], np.log(s1["conc"]))
-    row1 = res.loc[res["Subject"] == 1].iloc[0]
+    row1 = res.profile(1).parameters
     np.testing.assert_allclose(row1["LAMZ"], -ref.slope, rtol=1e-10)
     # the same run through the core's own arguments gives identical parameters
     direct = nca(theoph, **OPTS, terminal={1: (3.0, 24.5)}, exclude={2: [12.0]})
-    np.testing.assert_array_equal(res.drop(columns="Subject").to_numpy(), direct.drop(columns="Subject").to_numpy())
+    np.testing.assert_array_equal(res.parameters.to_numpy(), direct.parameters.to_numpy())
     assert res.settings["selections"]["applied"] == [("1",), ("2",)]
-    rows2 = res.rows[(res.rows["Subject"] == 2)]
-    assert not rows2.loc[rows2["Time"] == 12.0, "lambda_z"].any()
+    rows2 = res.profile(2).samples
+    assert not rows2.loc[rows2["Time"] == 12.0, "nca_lambda_z"].any()
 
 
 def test_stale_fingerprint_falls_back_and_flags(theoph, tmp_path):
@@ -157,8 +157,8 @@ def test_stale_fingerprint_falls_back_and_flags(theoph, tmp_path):
     changed.loc[(changed["Subject"] == 1) & (changed["Time"] > 20), "conc"] *= 1.01  # data corrected later
     res = nca(changed, **OPTS, selections=rec)
     auto = nca(changed, **OPTS)
-    np.testing.assert_array_equal(res.drop(columns="Subject").to_numpy(), auto.drop(columns="Subject").to_numpy())
-    f = res.qc_flags
+    np.testing.assert_array_equal(res.parameters.to_numpy(), auto.parameters.to_numpy())
+    f = res.flags
     hit = f[(f["Subject"] == 1) & (f["flag"] == "selection_stale")]
     assert len(hit) == 1 and "fingerprint differs" in hit["message"].iloc[0]
     assert not ((f["Subject"] != 1) & (f["flag"] == "selection_stale")).any()
@@ -169,7 +169,7 @@ def test_choice_without_fingerprint_is_not_applied(theoph):
     rec = SelectionRecord()
     rec.set_window(1, 3.0, 24.5, "scripted without data", author="t")
     res = nca(theoph, **OPTS, selections=rec)
-    assert "selection_stale" in set(res.qc_flags["flag"])
+    assert "selection_stale" in set(res.flags["flag"])
     assert res.settings["selections"]["applied"] == []
 
 

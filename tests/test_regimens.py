@@ -151,9 +151,9 @@ def test_accumulation_ratios_against_superposition():
     # closed form: AUC0-tau after the first dose = a [(1 - e^{-ke tau})/ke - (1 - e^{-ka tau})/ka]
     a = dose * ka / (v * (ka - ke))
     auc1 = a * ((1 - np.exp(-ke * TAU)) / ke - (1 - np.exp(-ka * TAU)) / ka)
-    ss = res.loc[res["day"] == 8].iloc[0]
+    ss = res.parameters.loc[res.parameters["day"] == 8].iloc[0]
     assert ss["ARAUC"] == pytest.approx((dose / (ke * v)) / auc1, rel=1e-3)
-    assert np.isnan(res.loc[res["day"] == 1, "ARAUC"].iloc[0])
+    assert np.isnan(res.parameters.loc[res.parameters["day"] == 1, "ARAUC"].iloc[0])
     assert ss["ARCMAX"] == pytest.approx(oral_ss(t).max() / first.max(), rel=1e-12)
 
 
@@ -164,7 +164,7 @@ def test_dose_time_makes_times_relative():
     frame = pd.DataFrame({"subject": 1, "time": 168 + t_rel, "conc": c, "dose": D, "dose_time": 168.0})
     res = pk.nca(frame, by="subject", dose_time="dose_time", tau=TAU, route="iv-bolus",
                  auc_method="lin-up/log-down")
-    assert res["AUCTAU"].iloc[0] == pytest.approx(D / CL, rel=1e-12)  # superposition, as above
+    assert res.parameters["AUCTAU"].iloc[0] == pytest.approx(D / CL, rel=1e-12)  # superposition, as above
 
 
 # --- partial AUC ----------------------------------------------------------------
@@ -219,7 +219,7 @@ def test_early_exposure_cut_at_reference_median_tmax():
     tmax_ref = 1.5  # median reference Tmax, taken as given
     res = pk.nca(frame, by="subject", dose=None, partial={"AUCINT_early": (0, tmax_ref)})
     # hand calculation, subject 1: 0.5*4/2 + 0.5*(4+9)/2 + 0.5*(9+8)/2 with c(1.5) = 8
-    assert res.loc[res.subject == 1, "AUCINT_early"].item() == pytest.approx(1 + 3.25 + 4.25, rel=1e-15)
+    assert res.profile(1).parameters["AUCINT_early"] == pytest.approx(1 + 3.25 + 4.25, rel=1e-15)
 
 
 def test_ema_truncated_auc_0_72():
