@@ -82,6 +82,13 @@ def _concentrations(rows):
     return conc, value, blq, lloq, bad
 
 
+def _nominal_source(columns):
+    """Where the nominal times came from, in words (the reading's summary)."""
+    if "PCELTM" in columns:
+        return "PCELTM (PCTPTNUM where empty)" if "PCTPTNUM" in columns else "PCELTM"
+    return "PCTPTNUM, taken to be in hours" if "PCTPTNUM" in columns else "none: PC has neither PCELTM nor PCTPTNUM"
+
+
 def _nominal_times(rows):
     """Planned time after the dose in hours: PCELTM (ISO 8601 duration) where given, else PCTPTNUM."""
     if "PCELTM" in rows.columns:

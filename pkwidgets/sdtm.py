@@ -31,7 +31,7 @@ import numpy as np
 import pandas as pd
 
 from ._iso8601 import parse_datetimes
-from ._sdtm_io import _concentrations, _nominal_times, _number, _require, _text, read_domain
+from ._sdtm_io import _concentrations, _nominal_source, _nominal_times, _number, _require, _text, read_domain
 from .errors import InputDataError
 
 __all__ = ["SDTMRead", "read_sdtm", "read_domain"]
@@ -217,7 +217,7 @@ def read_sdtm(pc, ex=None, *, analyte=None, specimen=None, date_only_dose="midni
         (hours), ``conc`` (the number, or ``"<LLOQ"``/``"BLQ"`` text that
         :func:`pkwidgets.nca` reads as BLQ), ``conc_value`` (NaN for BLQ),
         ``blq``, ``lloq``, ``conc_unit``, ``dose``, ``dose_unit``, ``route``,
-        ``dose_number`` (order of the dose in EX, per subject),
+        ``EXTRT`` (when EX names treatments), ``dose_number`` (order of the dose in EX, per subject),
         ``dose_datetime`` (EXSTDTC as written), ``sample_datetime`` (PCDTC),
         ``dose_time_imputed``, ``time_unit`` ("h") and, when PC has PCENDTC
         (interval collections), ``end_time`` (hours after the same dose).  ``long.attrs["sdtm"]``
@@ -325,6 +325,8 @@ def _long_table(rows, placed, when, d, conc, value, blq, lloq, with_doses):
         out["dose"] = d["dose"].to_numpy()
         out["dose_unit"] = d["dose_unit"].to_numpy()
         out["route"] = d["route"].to_numpy()
+        if (d["EXTRT"] != "").any():  # the treatment of the matched dose (crossover periods, partial areas)
+            out["EXTRT"] = d["EXTRT"].to_numpy()
     out["dose_number"] = d["dose_number"].to_numpy()
     out["dose_datetime"] = d["dose_datetime"].to_numpy()
     out["sample_datetime"] = _text(rows.loc[keep], "PCDTC").to_numpy()
@@ -393,6 +395,5 @@ def _summary(n_read, n_chosen, long, unplaced, notes):
     items += [(f"unplaced: {k}", int(v)) for k, v in unplaced["reason_code"].value_counts().sort_index().items()]
     items += [("profiles (USUBJID x PCTESTCD x PCSPEC)", int(long.groupby(["USUBJID", "PCTESTCD", "PCSPEC"]).ngroups)),
               ("time unit", "h (actual time after the dose)"),
-              ("nominal time from", "PCELTM (PCTPTNUM where empty)" if "PCELTM" in long.columns
-               else "PCTPTNUM, taken to be in hours"), ("notes", len(notes))]
+              ("nominal time from", _nominal_source(long.columns)), ("notes", len(notes))]
     return pd.DataFrame(items, columns=["item", "value"])

@@ -199,7 +199,7 @@ FAILURES = [
     (["-p", "group_by", "[dose"], r"-p group_by: '\[dose' is not valid YAML", False),
     (["-y", "- a list"], r"-y must give a YAML mapping .* got list", False),
     (["-p", "time_units", "min"], r"has no parameter 'time_units' \(did you mean 'time_unit'\?\); its parameters "
-                                  r"are: data_path, output_dir, columns, time_unit", True),
+                                  r"are: data_format, data_path, pc_path, ex_path, .*, output_dir, columns, time_unit", True),
     (["-p", "output_dir", "x"], r"output_dir is set by the OUTPUT_DIR argument", False),
     (["-p", "data_path", "{tmp}/missing.csv"], r"data file .*missing\.csv not found \(parameter data_path\)", True),
     (["-p", "data_path", "{tmp}/user_folder"], r"data file .*user_folder is a folder, not a file", False),

@@ -42,11 +42,20 @@ from .sections import (concentration_listing, left_out_table, mean_n_table, mean
 from .figure_pages import fit_caption, plot_profile_pages
 from .words import flag_counts, rules_in_words, run_counts
 from .pdf import write_pdf
+from .study_input import (DATA_FORMATS, StudyInput, input_exports, input_info, input_tables, read_study,
+                          write_sdtm_outputs)
 
 #: The record header as HTML (former private name, kept for callers of the single-module report).
 _header_html = header_html
 
 __all__ = [
+    "DATA_FORMATS",
+    "StudyInput",
+    "input_exports",
+    "input_info",
+    "input_tables",
+    "read_study",
+    "write_sdtm_outputs",
     "REGIMENS",
     "Caption",
     "ReportTable",

@@ -31,25 +31,29 @@ _PATH_PARAMETERS = ("data_path", "selection_record", "pc_path", "ex_path", "plas
 _KERNEL_ARGUMENTS = ["--IPKernelApp.log_level=ERROR"]
 
 
-def _data_file(notebook, declared, params) -> str | None:
-    """The data file the run will read: the ``data_path`` given, or the notebook's default from its folder."""
-    if "data_path" not in declared:
-        return None
-    if params.get("data_path") is not None:
-        return params["data_path"]
-    default = default_value(declared, "data_path")
-    return os.path.join(os.path.dirname(notebook), default) if isinstance(default, str) else None
+def _data_files(notebook, declared, params) -> list:
+    """(parameter, path) of the data files the run will read: ``data_path``, or ``pc_path``/``ex_path`` for SDTM.
+
+    A parameter not given takes the notebook's default, from its folder.
+    """
+    def value(name):
+        if params.get(name) is not None:
+            return params[name]
+        default = default_value(declared, name)
+        return os.path.join(os.path.dirname(notebook), default) if isinstance(default, str) else None
+
+    data_format = params.get("data_format", default_value(declared, "data_format"))
+    names = ("pc_path", "ex_path") if data_format == "sdtm" else ("data_path",)
+    return [(name, value(name)) for name in names if name in declared and value(name) is not None]
 
 
-def _check_data_file(path, final) -> None:
-    if path is None:
-        return
+def _check_data_file(name, path, final) -> None:
     path = os.path.abspath(path)
+    what = "the study table" if name == "data_path" else f"the SDTM {name[:2].upper()} domain"
     if not os.path.exists(path):
-        raise RunError(f"data file {path} not found (parameter data_path): give the study table with "
-                       f"-p data_path FILE.")
+        raise RunError(f"data file {path} not found (parameter {name}): give {what} with -p {name} FILE.")
     if not os.path.isfile(path):
-        raise RunError(f"data file {path} is a folder, not a file (parameter data_path): give the study table.")
+        raise RunError(f"data file {path} is a folder, not a file (parameter {name}): give {what}.")
     if os.path.commonpath([path, final]) == final:
         raise RunError(f"data file {path} is inside the output folder {final}, which a run replaces as a whole: "
                        f"move the data file out or choose another output folder.")
@@ -65,7 +69,8 @@ def _resolve(notebook, declared, parameters, final) -> dict:
     kept = os.path.join(final, SELECTION_FILE)  # the output folder's own record, once one has been saved there
     if "selection_record" in declared and params.get("selection_record") is None and os.path.exists(kept):
         params["selection_record"] = kept
-    _check_data_file(_data_file(notebook, declared, params), final)
+    for name, path in _data_files(notebook, declared, params):
+        _check_data_file(name, path, final)
     return params
 
 

@@ -54,6 +54,8 @@ def group_labels(frame, group_by, units=None) -> pd.Series:
     units = units or {}
     if not group_by:
         return pd.Series("all", index=frame.index)
+    if frame.empty:
+        return pd.Series([], index=frame.index, dtype=object)
     parts = [frame[g].map(lambda v, g=g: f"{g} {format_group_value(v, units.get(g, ''))}") for g in group_by]
     return pd.concat(parts, axis=1).agg(", ".join, axis=1)
 

@@ -19,15 +19,21 @@ __all__ = ["ROLES", "PARAMETER_HELP", "AnalysisSetup", "analysis_setup", "displa
            "key_parameters"]
 
 #: Column roles an analysis notebook's ``columns`` parameter may name; the first three are required.
-ROLES = ("subject", "time", "conc", "dose", "period", "day", "treatment", "analyte", "blq", "lloq",
+ROLES = ("subject", "time", "conc", "dose", "period", "day", "treatment", "analyte", "specimen", "blq", "lloq",
          "nominal_time", "tau", "duration")
-_KEY_ROLES = ("period", "day", "treatment", "analyte")
+_KEY_ROLES = ("period", "day", "treatment", "analyte", "specimen")
 #: File name of a run's own selection record (may be new); a record of any other name must exist.
 _OWN_RECORD = "terminal_selection.json"
 
 #: What each shared notebook parameter means (shown by ``pkwidgets params`` when the notebook has no comment).
 PARAMETER_HELP = {
+    "data_format": "long (data_path: one CSV row per sample, columns named by 'columns') or sdtm (pc_path, ex_path)",
     "data_path": "study table, one row per sample (CSV); relative paths are taken from the current folder",
+    "pc_path": "SDTM PC domain (.xpt, .sas7bdat, .parquet or .csv), used when data_format is sdtm",
+    "ex_path": "SDTM EX domain (doses), used when data_format is sdtm",
+    "analyte": "SDTM input: PCTESTCD value(s) to keep; null for every analyte (each its own profile)",
+    "specimen": "SDTM input: PCSPEC value(s) to keep; null for every specimen (each its own profile)",
+    "date_only_dose": "SDTM input: an EXSTDTC without time of day is taken at midnight, or its samples unplaced",
     "output_dir": "folder for the executed notebook, CSV exports and HTML record (the OUTPUT_DIR argument)",
     "columns": "mapping of role to column name; roles: " + ", ".join(ROLES) + " (subject, time, conc required)",
     "time_unit": "unit of the time column, e.g. h or min",
@@ -57,8 +63,8 @@ class AnalysisSetup:
     Attributes
     ----------
     by : list of str
-        Profile keys: the subject column, then period, day, treatment and
-        analyte columns when the roles name them.
+        Profile keys: the subject column, then period, day, treatment,
+        analyte and specimen columns when the roles name them.
     time, conc : str
         Time and concentration columns.
     blq : str or None

@@ -206,8 +206,9 @@ def mean_profile_data(result, *, group_by, nominal_time=None, left_out=None, tol
     if left_out is not None and len(left_out):
         rows = rows[~rows["nca_profile_id"].isin(left_out["profile_id"])]
     actual = pd.to_numeric(rows["nca_time"], errors="coerce").to_numpy(dtype=np.float64)
-    if nominal_time and nominal_time in rows.columns:
-        nominal = pd.to_numeric(rows[nominal_time], errors="coerce").to_numpy(dtype=np.float64)
+    nominal = (pd.to_numeric(rows[nominal_time], errors="coerce").to_numpy(dtype=np.float64)
+               if nominal_time and nominal_time in rows.columns else np.full(len(rows), np.nan))
+    if np.isfinite(nominal).any():
         rows["_mean_time"] = nominal
         off = np.abs(actual - nominal) > tolerance * np.maximum(np.abs(nominal), 1e-12)
         off &= np.isfinite(actual) & np.isfinite(nominal) & (np.abs(actual - nominal) > 1e-9)
@@ -216,9 +217,13 @@ def mean_profile_data(result, *, group_by, nominal_time=None, left_out=None, tol
             caption += (f" Warning: {int(off.sum())} sample(s) taken more than {tolerance:.0%} away from their "
                         f"nominal time (largest difference {format_value(np.nanmax(np.abs(actual - nominal)[off]))}"
                         f"{' ' + time_unit if time_unit else ''}).")
+        missing = int((~np.isfinite(nominal) & np.isfinite(actual)).sum())
+        if missing:
+            caption += f" {missing} sample(s) without a nominal time are not in the means."
         return rows, caption
     rows["_mean_time"] = bin_times(actual, tolerance)
-    caption = ("No nominal-time column: actual times after the dose gathered into bins of times within "
+    caption = ((f"The nominal-time column {nominal_time} holds no time: " if nominal_time else "No nominal-time column: ")
+               + "actual times after the dose gathered into bins of times within "
                f"{tolerance:.0%} of each other, each shown at its median time; BLQ as 0; n: samples in each bin.")
     spread = pd.Series(actual).groupby(rows["_mean_time"].to_numpy()).agg(lambda x: x.max() - x.min())
     if (spread > 0).any():
