@@ -155,14 +155,14 @@ def input_tables(study) -> list:
     """What the record shows about the input: for SDTM the reading's counts, notes and unplaced rows."""
     if study.sdtm is None:
         return []
-    from .tables import Caption, report_table
+    from .tables import COUNT_CODES, Caption, report_table
 
     read = study.sdtm
     counts = read.summary[read.summary["item"] != "notes"]  # the notes themselves follow
     out = [report_table(counts, sort=False, caption="SDTM input: PC rows read, placed and not placed.")]
     out += [Caption("Note: " + note, note=True) for note in study.notes]
     if len(read.unplaced):
-        out.append(report_table(read.unplaced, keys=["USUBJID"],
+        out.append(report_table(read.unplaced, keys=["USUBJID"], counts=set(COUNT_CODES) | {"PCSEQ"},
                                 caption="PC rows not placed, with the reason (exported as unplaced_sdtm_rows.csv)."))
     else:
         out.append(Caption("Every PC row was placed."))
