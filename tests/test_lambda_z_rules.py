@@ -22,7 +22,7 @@ import statsmodels.api as sm
 from statsmodels.tools.eval_measures import aicc
 
 from pkwidgets.lambda_z import fit_lambda_z, fit_lambda_z_profiles_major, fit_lambda_z_samples_major
-from pkwidgets.terminal_rules import OFF_LINE_LEVELS, EXTENSION_RUN, TERMINAL_RULES, window_aicc
+from pkwidgets.terminal_rules import EXTENSION_RUN, FIRM_BELOW_LEVEL, OFF_LINE_LEVELS, TERMINAL_RULES, window_aicc
 
 ROOT = Path(__file__).resolve().parents[1]
 #: The commit before the rules were added: its lambda_z.py is the bit-for-bit reference.
@@ -190,7 +190,7 @@ def test_two_tmax_and_last_n_take_the_defined_points():
 def _tail_extension_reference(t, c, cand, levels=OFF_LINE_LEVELS, run=EXTENSION_RUN, tmax=None):
     """Slow reference written from the rule's definition (pkwidgets.terminal_rules docstring)."""
     idx = np.flatnonzero(cand)
-    streak, top, cut = 0, None, None
+    streak, side, top, firm, cut = 0, 0, None, False, None
     for j in range(len(idx) - 4, -1, -1):
         after = idx[j + 1:]
         r = stats.linregress(t[after], np.log(c[after]))
@@ -199,14 +199,16 @@ def _tail_extension_reference(t, c, cand, levels=OFF_LINE_LEVELS, run=EXTENSION_
         s = np.sqrt(np.sum((np.log(c[after]) - r.intercept - r.slope * t[after]) ** 2) / (n - 2))
         sxx = np.sum((t[after] - t[after].mean()) ** 2)
         stud = resid / (s * np.sqrt(1 + 1 / n + (x0 - t[after].mean()) ** 2 / sxx))
-        off = stud > stats.t.ppf(levels[0], n - 2) or stud < -stats.t.ppf(levels[1], n - 2)
-        top = j if off and streak == 0 else top
-        streak = streak + 1 if off else 0
+        here = 1 if stud > stats.t.ppf(levels[0], n - 2) else -1 if stud < -stats.t.ppf(levels[1], n - 2) else 0
+        if here == 0 or here != side:  # a point on the line or on the other side ends the run
+            streak, side, top, firm = 0, here, j, False
+        streak += here != 0
+        firm = firm or stud < -stats.t.ppf(max(levels[1], FIRM_BELOW_LEVEL), n - 2)
         if streak >= run:
             cut = top
             break
-    else:
-        cut = top if streak > 0 else None
+    else:  # a shorter run reaching the first candidate: above always, below only when firm
+        cut = top if streak > 0 and (side > 0 or firm) else None
     window = idx[(cut + 1 if cut is not None else 0):]
     if cut is not None and len(window) > 3:  # one-point margin after a bend
         window = window[1:]
