@@ -223,7 +223,8 @@ def _off_line(w, levels, seed):
     resid, df = _prediction_residuals(w, seed)
     dfs = np.arange(1, w.n.shape[0] + 1)
     k, tested = np.maximum(df, 1) - 1, df > 0
-    t_up, t_lo, t_firm = (stats.t.ppf(q, dfs)[k] for q in (levels[0], levels[1], max(levels[1], FIRM_BELOW_LEVEL)))
+    quantiles = (levels[0], levels[1], max(levels[1], FIRM_BELOW_LEVEL))
+    t_up, t_lo, t_firm = (np.take(stats.t.ppf(q, dfs), k) for q in quantiles)
     return tested & (resid > t_up), tested & (resid < -t_lo), tested & (resid < -t_firm)
 
 

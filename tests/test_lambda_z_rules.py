@@ -126,6 +126,18 @@ def test_tail_extension_finds_beta_on_a_noise_free_two_compartment_curve():
     assert abs(fit.lamz[0] / beta - 1) < 1e-6
 
 
+def test_tail_extension_finds_k_on_a_noise_free_bateman_curve():
+    # closed form (Bateman; Gibaldi & Perrier, ch. 1, from memory): C = D ka / (V (ka - k)) (exp(-k t) - exp(-ka t));
+    # exact points still rising towards the elimination line (absorption phase) lie below it beyond any residual
+    # noise, so the run below the line must stop the rule and the window must give k
+    t = np.array([0.25, 0.5, 1, 1.5, 2, 3, 4, 6, 8, 12, 16, 24, 36, 48, 72.0])
+    for ka, k in ((1.0, 0.1), (0.8, 0.05), (2.0, 0.2)):
+        c = 100 * ka / (50 * (ka - k)) * (np.exp(-k * t) - np.exp(-ka * t))
+        i = int(np.argmax(c))
+        fit = fit_lambda_z(t, c, np.arange(t.size) > i, False, rule="tail-extension", tmax=np.array([t[i]]))
+        assert abs(fit.lamz[0] / k - 1) < 1e-5 and fit.npoints[0] >= 5
+
+
 def _suffix_windows(t, y, cand):
     idx = np.flatnonzero(cand)
     return [idx[i:] for i in range(len(idx))]
