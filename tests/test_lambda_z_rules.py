@@ -22,7 +22,7 @@ import statsmodels.api as sm
 from statsmodels.tools.eval_measures import aicc
 
 from pkwidgets.lambda_z import fit_lambda_z, fit_lambda_z_profiles_major, fit_lambda_z_samples_major
-from pkwidgets.terminal_rules import OFF_LINE_LEVELS, EXTENSION_RUN, TERMINAL_RULES, window_aicc
+from pkwidgets.terminal_rules import EXTENSION_RUN, FIRM_BELOW_LEVEL, OFF_LINE_LEVELS, TERMINAL_RULES, window_aicc
 
 ROOT = Path(__file__).resolve().parents[1]
 #: The commit before the rules were added: its lambda_z.py is the bit-for-bit reference.
@@ -126,6 +126,18 @@ def test_tail_extension_finds_beta_on_a_noise_free_two_compartment_curve():
     assert abs(fit.lamz[0] / beta - 1) < 1e-6
 
 
+def test_tail_extension_finds_k_on_a_noise_free_bateman_curve():
+    # closed form (Bateman; Gibaldi & Perrier, ch. 1, from memory): C = D ka / (V (ka - k)) (exp(-k t) - exp(-ka t));
+    # exact points still rising towards the elimination line (absorption phase) lie below it beyond any residual
+    # noise, so the run below the line must stop the rule and the window must give k
+    t = np.array([0.25, 0.5, 1, 1.5, 2, 3, 4, 6, 8, 12, 16, 24, 36, 48, 72.0])
+    for ka, k in ((1.0, 0.1), (0.8, 0.05), (2.0, 0.2)):
+        c = 100 * ka / (50 * (ka - k)) * (np.exp(-k * t) - np.exp(-ka * t))
+        i = int(np.argmax(c))
+        fit = fit_lambda_z(t, c, np.arange(t.size) > i, False, rule="tail-extension", tmax=np.array([t[i]]))
+        assert abs(fit.lamz[0] / k - 1) < 1e-5 and fit.npoints[0] >= 5
+
+
 def _suffix_windows(t, y, cand):
     idx = np.flatnonzero(cand)
     return [idx[i:] for i in range(len(idx))]
@@ -190,7 +202,7 @@ def test_two_tmax_and_last_n_take_the_defined_points():
 def _tail_extension_reference(t, c, cand, levels=OFF_LINE_LEVELS, run=EXTENSION_RUN, tmax=None):
     """Slow reference written from the rule's definition (pkwidgets.terminal_rules docstring)."""
     idx = np.flatnonzero(cand)
-    streak, top, cut = 0, None, None
+    streak, side, top, firm, cut = 0, 0, None, False, None
     for j in range(len(idx) - 4, -1, -1):
         after = idx[j + 1:]
         r = stats.linregress(t[after], np.log(c[after]))
@@ -199,14 +211,16 @@ def _tail_extension_reference(t, c, cand, levels=OFF_LINE_LEVELS, run=EXTENSION_
         s = np.sqrt(np.sum((np.log(c[after]) - r.intercept - r.slope * t[after]) ** 2) / (n - 2))
         sxx = np.sum((t[after] - t[after].mean()) ** 2)
         stud = resid / (s * np.sqrt(1 + 1 / n + (x0 - t[after].mean()) ** 2 / sxx))
-        off = stud > stats.t.ppf(levels[0], n - 2) or stud < -stats.t.ppf(levels[1], n - 2)
-        top = j if off and streak == 0 else top
-        streak = streak + 1 if off else 0
+        here = 1 if stud > stats.t.ppf(levels[0], n - 2) else -1 if stud < -stats.t.ppf(levels[1], n - 2) else 0
+        if here == 0 or here != side:  # a point on the line or on the other side ends the run
+            streak, side, top, firm = 0, here, j, False
+        streak += here != 0
+        firm = firm or stud < -stats.t.ppf(max(levels[1], FIRM_BELOW_LEVEL), n - 2)
         if streak >= run:
             cut = top
             break
-    else:
-        cut = top if streak > 0 else None
+    else:  # a shorter run reaching the first candidate: above always, below only when firm
+        cut = top if streak > 0 and (side > 0 or firm) else None
     window = idx[(cut + 1 if cut is not None else 0):]
     if cut is not None and len(window) > 3:  # one-point margin after a bend
         window = window[1:]
