@@ -32,8 +32,9 @@ _LAMBDA_Z = {
     "last-n": "the last n points after CMAX",
     "aicc": "the window with the lowest small-sample Akaike criterion (at least 4 points)",
     "tail-extension": "the last 3 points after CMAX, extended backwards while earlier points stay on the "
-                      "line within its own prediction noise (a run of 4 points off the line stops it and the "
-                      "edge point of the bend stays out; not before 2 x TMAX for extravascular doses); "
+                      "line within its own prediction noise (a run of 4 points on one side of the line stops it, a "
+                      "shorter run at the start only when above it or far below; the edge point of the bend "
+                      "stays out; not before 2 x TMAX for extravascular doses); "
                       "pkwidgets' own rule, measured in bench/terminal_accuracy.py",
 }
 #: Reviewer-check threshold -> (sentence, source).
