@@ -21,6 +21,11 @@ covers fewer than all profiles its time is extrapolated linearly, and the
 table says so.  Peak memory is traced with ``tracemalloc`` in a separate
 run (NumPy reports its buffers to it) and compared with the input arrays.
 
+With ``--base COMMIT`` the script times the engine of that commit and the
+worktree's instead, turn about in one process (``bench/_side_by_side.py``),
+and prints base / new ratios of wall and CPU time: on a shared machine a
+ratio measured side by side says more than either time alone.
+
 Timings depend on the machine and on what else runs on it: the header
 prints the CPU, core count, NumPy version and load average.
 """
@@ -146,14 +151,39 @@ def peak_memory(t, c, blq):
     return peak, out_bytes
 
 
+def compare_with(base, sizes, threads, rounds):
+    """The engine of commit ``base`` against the worktree's, interleaved in this process; base / new ratios."""
+    from _side_by_side import RATIO_HEAD, interleave, load_base, ratio_line
+
+    old = load_base(base)
+    print(f"side by side: {base} (imported as {old.__name__}) vs this worktree, turn about, median of {rounds} "
+          "rounds; seconds per 10^6 profiles (default lambda-z rule)")
+    print(RATIO_HEAD)
+    t, c, blq = simulate(max(sizes))
+    for P in sizes:
+        for th in ([threads] if threads else [1, os.cpu_count() or 1]):
+            old.engine.THREADS = engine.THREADS = th
+            tp, cp, bp = t[:P], c[:P], blq[:P]
+            res = interleave({"base": lambda: old.nca_arrays(tp, cp, blq=bp, dose=DOSE, lloq=LLOQ),
+                              "new": lambda: nca_arrays(tp, cp, blq=bp, dose=DOSE, lloq=LLOQ)}, rounds)
+            print(ratio_line(f"nca_arrays, {P:,} profiles, {th} thread(s)", res["base"], res["new"], 1e6 / P),
+                  flush=True)
+    print(f"load average at the end: {os.getloadavg()[0]:.2f}")
+
+
 def main(argv=None):
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--sizes", default="10000,100000,1000000", help="comma-separated profile counts")
     ap.add_argument("--repeat", type=int, default=5, help="engine runs per size (best and median reported)")
     ap.add_argument("--ref-budget", type=float, default=15.0, help="seconds of reference loop per size")
     ap.add_argument("--threads", type=int, default=None, help="engine threads (default: all cores)")
+    ap.add_argument("--base", help="time this commit's engine against the worktree's, side by side")
+    ap.add_argument("--rounds", type=int, default=5, help="rounds turn about per row with --base (median)")
     args = ap.parse_args(argv)
     sizes = [int(s) for s in args.sizes.split(",")]
+    if args.base:
+        print(f"machine: {machine()}")
+        return compare_with(args.base, sizes, args.threads, args.rounds)
     engine.THREADS = args.threads
 
     print("pkwidgets NCA speed benchmark (synthetic one-compartment oral profiles, 16 samples, BLQ)")
