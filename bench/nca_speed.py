@@ -168,7 +168,37 @@ def compare_with(base, sizes, threads, rounds):
                               "new": lambda: nca_arrays(tp, cp, blq=bp, dose=DOSE, lloq=LLOQ)}, rounds)
             print(ratio_line(f"nca_arrays, {P:,} profiles, {th} thread(s)", res["base"], res["new"], 1e6 / P),
                   flush=True)
+    as_shipped(base, max(sizes), threads or os.cpu_count() or 1, rounds)
     print(f"load average at the end: {os.getloadavg()[0]:.2f}")
+
+
+_PROCESS_SETUP = """
+from pkwidgets import engine, nca_arrays  # first: nca_speed puts the worktree on sys.path
+from nca_speed import simulate, DOSE, LLOQ
+engine.THREADS = {threads}
+t, c, blq = simulate({P})
+def work():
+    nca_arrays(t, c, blq=blq, dose=DOSE, lloq=LLOQ)
+"""
+
+
+def as_shipped(base, P, threads, rounds):
+    """Base and worktree each in fresh processes, turn about: with the worktree's heap settings and without.
+
+    In one process the heap settings of :mod:`pkwidgets._memory`, once applied, serve both versions, so
+    the rows above compare the code alone; these rows compare the versions as a user runs them.
+    """
+    from _side_by_side import RATIO_HEAD, alternate_processes, ratio_line, unpack
+
+    variants = {"base": (unpack(base), {}), "new, PKWIDGETS_HEAP=default": (ROOT, {"PKWIDGETS_HEAP": "default"}),
+                "new": (ROOT, {})}
+    res = alternate_processes(variants, _PROCESS_SETUP.format(P=P, threads=threads), rounds=max(2, rounds // 2))
+    print()
+    print(f"fresh process per run, turn about ({max(2, rounds // 2)} rounds, median), {P:,} profiles, {threads} "
+          f"thread(s); base is {base} as shipped (glibc's dynamic heap thresholds)")
+    print(RATIO_HEAD)
+    print(ratio_line("new code, default heap", res["base"], res["new, PKWIDGETS_HEAP=default"], 1e6 / P))
+    print(ratio_line("new code, kept heap (as shipped)", res["base"], res["new"], 1e6 / P))
 
 
 def main(argv=None):
