@@ -44,8 +44,11 @@ class DoseTimePoint:
 
 
 def pick(a, idx):
-    """``a[idx[p], p]`` for every profile p of a samples x profiles array."""
-    return a[idx, np.arange(a.shape[1])]
+    """``a[idx[p], p]`` for every profile p of a samples x profiles array (a flat take where ``a`` is contiguous)."""
+    cols = np.arange(a.shape[1])
+    if a.flags.c_contiguous:
+        return a.reshape(-1).take(idx * a.shape[1] + cols)
+    return a[idx, cols]
 
 
 def anchor_at_dose_time(samples: ChunkSamples, classified: ClassifiedSamples, tau, route, rules,

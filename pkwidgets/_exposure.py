@@ -53,7 +53,8 @@ def measure_exposure(ordered: SortedSamples, measured, tau, route, method) -> Ex
     Ts, Vs = ordered.time, ordered.value
     obs = ordered.usable & ~ordered.added
     with np.errstate(invalid="ignore"):
-        peak_pool = obs & np.where(~np.isnan(tau), Ts <= tau, True)
+        steady = ~np.isnan(tau)
+        peak_pool = obs & ((Ts <= tau) | ~steady) if steady.any() else obs
         positive = obs & (Vs > 0)
     i_max = argmax_rows(np.where(peak_pool, Vs, -np.inf))
     # a profile needs one measured (not substituted) positive concentration

@@ -161,9 +161,11 @@ def _assemble(w, start, has, shape):
     """Pick each profile's window row from the suffix statistics into a :class:`LambdaZFit`."""
     N, P = shape
     rows = np.arange(P)
+    flat = start * P + rows
 
-    def pick(a):  # a is (rows lo:hi) x profiles
-        return np.where(has, a[start, rows], np.nan)
+    def pick(a):  # a is (rows lo:hi) x profiles: a[start, rows], by a flat take where a is contiguous
+        at = a.reshape(-1).take(flat) if a.flags.c_contiguous else a[start, rows]
+        return np.where(has, at, np.nan)
 
     b = pick(w.slope)
     npts = pick(w.n)
