@@ -17,8 +17,9 @@ It prints, in one run on the same machine state:
    thread so that the profiler sees every chunk), grouped by stage;
 4. an experiment, only here in ``bench/`` and only if ``numba`` can be
    imported (it is not a dependency of pkwidgets; kernels in
-   ``bench/_numba_kernels.py``): compiled kernels of the lambda-z search and
-   of the segment areas, compared with the engine's NumPy stages on the same
+   ``bench/_numba_kernels.py``): compiled kernels of the lambda-z search (the
+   adjusted-R² rule; the default tail-extension rule has no compiled kernel)
+   and of the segment areas, compared with the engine's NumPy stages on the same
    inputs (NumPy in the engine's chunks and threads), for equality and speed;
    and a one-pass compiled kernel of this benchmark's case (CMAX, TMAX, TLST,
    AUCLST, LAMZ, AUCIFO only) against the whole engine: a ceiling for what a
@@ -233,7 +234,7 @@ def numba_experiment(t, obs, blq, repeat):
     print(f"  inputs: {P:,} profiles, samples-major and compacted as the engine holds them; NumPy side in the "
           f"engine's chunks of {engine.CHUNK} on {os.cpu_count()} threads")
     print(f"  {'stage':<42} {'NumPy wall s':>12} {'numba wall s':>12} {'ratio':>7}")
-    print(f"  {'lambda-z search':<42} {w_fit:>12.3f} {w_lz:>12.3f} {w_fit / w_lz:>7.1f}")
+    print(f"  {'lambda-z search (adjusted-R2 rule)':<42} {w_fit:>12.3f} {w_lz:>12.3f} {w_fit / w_lz:>7.1f}")
     print(f"  {'lambda-z + areas (AUC, AUMC, running sums)':<42} {w_np:>12.3f} {w_lz + w_ar:>12.3f} "
           f"{w_np / (w_lz + w_ar):>7.1f}")
     print(f"  equality: LAMZ max rel diff {rel_diff(l_nb, l_np):.1e}, R2ADJ {rel_diff(r_nb, r_np):.1e}, "
