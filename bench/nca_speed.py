@@ -21,6 +21,11 @@ covers fewer than all profiles its time is extrapolated linearly, and the
 table says so.  Peak memory is traced with ``tracemalloc`` in a separate
 run (NumPy reports its buffers to it) and compared with the input arrays.
 
+With ``--base COMMIT`` the script times the engine of that commit and the
+worktree's instead, turn about in one process (``bench/_side_by_side.py``),
+and prints base / new ratios of wall and CPU time: on a shared machine a
+ratio measured side by side says more than either time alone.
+
 Timings depend on the machine and on what else runs on it: the header
 prints the CPU, core count, NumPy version and load average.
 """
@@ -146,14 +151,69 @@ def peak_memory(t, c, blq):
     return peak, out_bytes
 
 
+def compare_with(base, sizes, threads, rounds):
+    """The engine of commit ``base`` against the worktree's, interleaved in this process; base / new ratios."""
+    from _side_by_side import RATIO_HEAD, interleave, load_base, ratio_line
+
+    old = load_base(base)
+    print(f"side by side: {base} (imported as {old.__name__}) vs this worktree, turn about, median of {rounds} "
+          "rounds; seconds per 10^6 profiles (default lambda-z rule)")
+    print(RATIO_HEAD)
+    t, c, blq = simulate(max(sizes))
+    for P in sizes:
+        for th in ([threads] if threads else [1, os.cpu_count() or 1]):
+            old.engine.THREADS = engine.THREADS = th
+            tp, cp, bp = t[:P], c[:P], blq[:P]
+            res = interleave({"base": lambda: old.nca_arrays(tp, cp, blq=bp, dose=DOSE, lloq=LLOQ),
+                              "new": lambda: nca_arrays(tp, cp, blq=bp, dose=DOSE, lloq=LLOQ)}, rounds)
+            print(ratio_line(f"nca_arrays, {P:,} profiles, {th} thread(s)", res["base"], res["new"], 1e6 / P),
+                  flush=True)
+    as_shipped(base, max(sizes), threads or os.cpu_count() or 1, rounds)
+    print(f"load average at the end: {os.getloadavg()[0]:.2f}")
+
+
+_PROCESS_SETUP = """
+from pkwidgets import engine, nca_arrays  # first: nca_speed puts the worktree on sys.path
+from nca_speed import simulate, DOSE, LLOQ
+engine.THREADS = {threads}
+t, c, blq = simulate({P})
+def work():
+    nca_arrays(t, c, blq=blq, dose=DOSE, lloq=LLOQ)
+"""
+
+
+def as_shipped(base, P, threads, rounds):
+    """Base and worktree each in fresh processes, turn about: with the worktree's heap settings and without.
+
+    In one process the heap settings of :mod:`pkwidgets._memory`, once applied, serve both versions, so
+    the rows above compare the code alone; these rows compare the versions as a user runs them.
+    """
+    from _side_by_side import RATIO_HEAD, alternate_processes, ratio_line, unpack
+
+    variants = {"base": (unpack(base), {}), "new, PKWIDGETS_HEAP=default": (ROOT, {"PKWIDGETS_HEAP": "default"}),
+                "new": (ROOT, {})}
+    res = alternate_processes(variants, _PROCESS_SETUP.format(P=P, threads=threads), rounds=max(2, rounds // 2))
+    print()
+    print(f"fresh process per run, turn about ({max(2, rounds // 2)} rounds, median), {P:,} profiles, {threads} "
+          f"thread(s); base is {base} as shipped (glibc's dynamic heap thresholds)")
+    print(RATIO_HEAD)
+    print(ratio_line("new code, default heap", res["base"], res["new, PKWIDGETS_HEAP=default"], 1e6 / P))
+    print(ratio_line("new code, kept heap (as shipped)", res["base"], res["new"], 1e6 / P))
+
+
 def main(argv=None):
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--sizes", default="10000,100000,1000000", help="comma-separated profile counts")
     ap.add_argument("--repeat", type=int, default=5, help="engine runs per size (best and median reported)")
     ap.add_argument("--ref-budget", type=float, default=15.0, help="seconds of reference loop per size")
     ap.add_argument("--threads", type=int, default=None, help="engine threads (default: all cores)")
+    ap.add_argument("--base", help="time this commit's engine against the worktree's, side by side")
+    ap.add_argument("--rounds", type=int, default=5, help="rounds turn about per row with --base (median)")
     args = ap.parse_args(argv)
     sizes = [int(s) for s in args.sizes.split(",")]
+    if args.base:
+        print(f"machine: {machine()}")
+        return compare_with(args.base, sizes, args.threads, args.rounds)
     engine.THREADS = args.threads
 
     print("pkwidgets NCA speed benchmark (synthetic one-compartment oral profiles, 16 samples, BLQ)")

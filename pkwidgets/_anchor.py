@@ -25,6 +25,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ._classify import ChunkSamples, ClassifiedSamples, rule_value
+from ._rows import argmax_rows
 from .qc import SampleStatus
 
 __all__ = ["DoseTimePoint", "anchor_at_dose_time", "pick"]
@@ -43,8 +44,11 @@ class DoseTimePoint:
 
 
 def pick(a, idx):
-    """``a[idx[p], p]`` for every profile p of a samples x profiles array."""
-    return a[idx, np.arange(a.shape[1])]
+    """``a[idx[p], p]`` for every profile p of a samples x profiles array (a flat take where ``a`` is contiguous)."""
+    cols = np.arange(a.shape[1])
+    if a.flags.c_contiguous:
+        return a.reshape(-1).take(idx * a.shape[1] + cols)
+    return a[idx, cols]
 
 
 def anchor_at_dose_time(samples: ChunkSamples, classified: ClassifiedSamples, tau, route, rules,
@@ -96,7 +100,7 @@ def _latest_predose(samples, classified, before_rule, allowed):
     before_blq = before & samples.blq
     pre_vals = np.where(before_blq, rule_value(before_rule, samples.lloq, before_blq, "before"), samples.conc)
     pre = before & ~np.isnan(pre_vals)
-    i_pre = np.argmax(np.where(pre, samples.time, -np.inf), axis=0)
+    i_pre = argmax_rows(np.where(pre, samples.time, -np.inf))
     return pre_vals, i_pre, pre.any(axis=0)
 
 

@@ -89,27 +89,36 @@ def classify_samples(samples: ChunkSamples, rules: BLQRules) -> ClassifiedSample
     """
     t, c, blq, lloq = samples.time, samples.conc, samples.blq, samples.lloq
     S = SampleStatus
-    status = np.zeros(t.shape, dtype=np.int8)
     present = ~np.isnan(t)
-    status[~present] = S.PADDING
     before_dose = present & (t < 0)
-    status[before_dose] = S.BEFORE_DOSE
     after_dose = present & ~before_dose
-    status[after_dose & np.isnan(c) & ~blq] = S.MISSING_CONC
+    # padding, before dose and missing are disjoint: their codes add up to the status of each sample
+    status = np.multiply(~present, S.PADDING, dtype=np.int8)
+    status += np.multiply(before_dose, S.BEFORE_DOSE, dtype=np.int8)
+    status += np.multiply(after_dose & np.isnan(c) & ~blq, S.MISSING_CONC, dtype=np.int8)
     is_blq = after_dose & blq
     with np.errstate(invalid="ignore"):
         measured = after_dose & ~blq & (c > 0)
+    value = np.where(blq, np.nan, c)
+    if is_blq.any():
+        _apply_blq_rules(t, measured, is_blq, lloq, rules, value, status)
+    usable = after_dose & ~np.isnan(value)
+    return ClassifiedSamples(status, present, before_dose, value, usable, measured)
+
+
+def _apply_blq_rules(t, measured, is_blq, lloq, rules, value, status):
+    """Write the value of each BLQ sample by its position's rule into ``value``; status for rule 'missing'."""
+    S = SampleStatus
     t_first = np.min(np.where(measured, t, np.inf), axis=0)
     t_last = np.max(np.where(measured, t, -np.inf), axis=0)
-    value = np.where(blq, np.nan, c)
     for position, mask, code in (
         ("before", is_blq & (t < t_first), S.BLQ_MISSING_BEFORE),
         ("after", is_blq & (t > t_last) & np.isfinite(t_last), S.BLQ_MISSING_AFTER),
         ("between", is_blq & (t > t_first) & (t < t_last), S.BLQ_MISSING_BETWEEN),
     ):
+        if not mask.any():
+            continue
         rule = getattr(rules, position)
-        value = np.where(mask, rule_value(rule, lloq, mask, position), value)
+        np.copyto(value, rule_value(rule, lloq, mask, position), where=mask)
         if rule == "missing":
             status[mask] = code
-    usable = after_dose & ~np.isnan(value)
-    return ClassifiedSamples(status, present, before_dose, value, usable, measured)

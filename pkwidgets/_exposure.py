@@ -19,6 +19,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ._anchor import pick
+from ._rows import argmax_rows, first_true, last_true
 from ._sorting import SortedSamples
 from .auc import segment_areas, segment_is_log
 
@@ -33,6 +34,7 @@ class Exposure:
     positive: np.ndarray      # sorted rows x profiles: observed positive concentrations
     i_max: np.ndarray         # sorted row of CMAX
     i_last: np.ndarray        # sorted row of CLST
+    i_first: np.ndarray       # sorted row of the first observed positive concentration (0 without one)
     cmax: np.ndarray
     tmax: np.ndarray
     clst: np.ndarray
@@ -49,20 +51,20 @@ class Exposure:
 def measure_exposure(ordered: SortedSamples, measured, tau, route, method) -> Exposure:
     """CMAX/TMAX (within [0, tau] at steady state), CLST/TLST, TLAG, AUCLST, AUMCLST and AUCALL."""
     Ts, Vs = ordered.time, ordered.value
-    M = Ts.shape[0]
     obs = ordered.usable & ~ordered.added
     with np.errstate(invalid="ignore"):
-        peak_pool = obs & np.where(~np.isnan(tau), Ts <= tau, True)
+        steady = ~np.isnan(tau)
+        peak_pool = obs & ((Ts <= tau) | ~steady) if steady.any() else obs
         positive = obs & (Vs > 0)
-    i_max = np.argmax(np.where(peak_pool, Vs, -np.inf), axis=0)
+    i_max = argmax_rows(np.where(peak_pool, Vs, -np.inf))
     # a profile needs one measured (not substituted) positive concentration
     has_pos = positive.any(axis=0) & measured.any(axis=0)
     cmax = np.where(has_pos, pick(Vs, i_max), np.nan)
     tmax = np.where(has_pos, pick(Ts, i_max), np.nan)
-    i_last = M - 1 - np.argmax(positive[::-1], axis=0)
+    i_last = last_true(positive)
     clst = np.where(has_pos, pick(Vs, i_last), np.nan)
     tlst = np.where(has_pos, pick(Ts, i_last), np.nan)
-    i_first = np.argmax(positive, axis=0)
+    i_first = first_true(positive)
     tlag = np.where(i_first > 0, pick(Ts, np.maximum(i_first - 1, 0)), 0.0)
     tlag = np.where(has_pos & (route == "extravascular"), tlag, np.nan)
     t_switch = np.zeros(Ts.shape[1]) if route == "iv-bolus" else tmax
@@ -70,7 +72,7 @@ def measure_exposure(ordered: SortedSamples, measured, tau, route, method) -> Ex
     auclst = np.where(has_pos, pick(A, i_last), np.nan)
     aumclst = np.where(has_pos, pick(Mm, i_last), np.nan)
     aucall = np.where(has_pos, pick(A, np.maximum(ordered.n_usable - 1, 0)), np.nan)
-    return Exposure(has_pos, positive, i_max, i_last, cmax, tmax, clst, tlst, tlag, is_log, A, Mm,
+    return Exposure(has_pos, positive, i_max, i_last, i_first, cmax, tmax, clst, tlst, tlag, is_log, A, Mm,
                     auclst, aumclst, aucall)
 
 

@@ -84,12 +84,9 @@ def sample_status(classified: ClassifiedSamples, ordered: SortedSamples, exposur
                   terminal: TerminalPhase):
     """Status and lambda-z membership of each input sample, profiles x samples (input order)."""
     status = classified.status
-    M, P = ordered.time.shape
     with np.errstate(invalid="ignore"):
         after_last = ordered.usable & (ordered.time > exposure.tlst) & ~ordered.added
-    back = np.empty(M * P, dtype=np.intp)  # flattened sorted position of each input sample
-    back[ordered.positions.reshape(-1)] = np.arange(M * P)
-    back = back.reshape(M, P)[1:]
+    back = ordered.destinations[1:]  # flattened sorted position of each input sample
     used_in = np.ascontiguousarray(terminal.fit.used).reshape(-1).take(back)
     late = after_last.reshape(-1).take(back)
     status[late & (status == SampleStatus.USED)] = SampleStatus.AFTER_TLAST

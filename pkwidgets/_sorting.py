@@ -3,7 +3,8 @@
 Row 0 of the joined arrays is the dose-time point; each profile (column) is
 then ordered by time with the samples that do not enter the areas moved to
 the end (their time and value set to NaN), so that stage 3 reads segments
-between neighbouring rows.  ``positions`` maps back to the input samples.
+between neighbouring rows.  ``destinations`` maps the input samples to their
+sorted places.
 """
 
 from __future__ import annotations
@@ -27,56 +28,71 @@ class SortedSamples:
     usable: np.ndarray      # bool: enters the areas (all True rows come first)
     excluded: np.ndarray    # bool: left out of the lambda-z fit by hand
     added: np.ndarray       # bool: the dose-time point (input row 0 of the joined arrays)
-    positions: np.ndarray   # flattened (rows, profiles) position of each sorted cell in the joined arrays
+    destinations: np.ndarray  # (rows, profiles): flattened sorted position of each cell of the joined arrays
     n_usable: np.ndarray    # (profiles,) number of usable rows
     times_sorted: np.ndarray  # (profiles,) bool: input samples were not in time order
 
 
 def sort_samples(samples: ChunkSamples, classified: ClassifiedSamples, anchor: DoseTimePoint) -> SortedSamples:
-    """Join the dose-time point to the samples and order each profile by time."""
-    t, usable = samples.time, anchor.usable
+    """Join the dose-time point to the samples and order each profile by time.
+
+    Each cell is written to its sorted place (a scatter by the destinations
+    of :func:`_destinations`); the usable cells of a profile are its first
+    ``n_usable`` sorted rows.
+    """
+    t, present = samples.time, classified.present
     P = t.shape[1]
     T = np.concatenate([np.zeros((1, P)), t], axis=0)
-    V = np.concatenate([anchor.conc[None, :], classified.value], axis=0)
-    U = np.concatenate([(anchor.added & ~np.isnan(anchor.conc))[None, :], usable], axis=0)
-    X = np.concatenate([np.zeros((1, P), dtype=bool), samples.exclude], axis=0)
-    order = _sort_order(T, U)
-    with np.errstate(invalid="ignore"):  # inf - inf between padding cells: NaN, not "out of order"
-        times_sorted = (np.diff(np.where(usable, t, np.nan), axis=0) < 0).any(axis=0) | (
-            np.diff(np.where(classified.present, t, np.inf), axis=0) < 0
-        ).any(axis=0)
-    flat = order * P + np.arange(P)  # positions in the flattened (rows, profiles) arrays
-    Ts = T.reshape(-1).take(flat)
-    Vs = V.reshape(-1).take(flat)
-    Us = U.reshape(-1).take(flat)
-    Xs = X.reshape(-1).take(flat)
-    Ts = np.where(Us, Ts, np.nan)
-    Vs = np.where(Us, Vs, np.nan)
-    return SortedSamples(Ts, Vs, Us, Xs, order == 0, flat, Us.sum(axis=0), times_sorted)
+    U = np.concatenate([(anchor.added & ~np.isnan(anchor.conc))[None, :], anchor.usable], axis=0)
+    dest, n_usable, Ts = _destinations(T, U)
+    unusable = np.arange(T.shape[0])[:, None] >= n_usable
+    np.copyto(Ts, np.nan, where=unusable)
+    Vs = _scatter(np.concatenate([anchor.conc[None, :], classified.value], axis=0), dest)
+    np.copyto(Vs, np.nan, where=unusable)
+    Xs = np.zeros(T.shape, dtype=bool)
+    Xs.reshape(-1)[dest[1:].reshape(-1)] = samples.exclude.reshape(-1)
+    added = np.zeros(T.shape, dtype=bool)
+    added.reshape(-1)[dest[0]] = True
+    # a present sample after padding, or earlier than the present sample before it: input not in time order
+    # (neighbours of np.where(present, t, inf) decreasing, which includes neighbours of np.where(usable, t, nan))
+    times_sorted = (present[1:] & (~present[:-1] | (t[1:] < t[:-1]))).any(axis=0)
+    return SortedSamples(Ts, Vs, ~unusable, Xs, added, dest, n_usable, times_sorted)
 
 
-def _sort_order(T, U):
-    """Per profile (column), the stable argsort of T with the unusable cells (U False) moved to the end.
+def _scatter(a, dest):
+    """``a`` with each cell written to its flat destination ``dest``."""
+    out = np.empty(a.shape, dtype=a.dtype)
+    out.reshape(-1)[dest.reshape(-1)] = a.reshape(-1)
+    return out
 
-    Profiles whose usable times already increase (the usual case) are ordered
-    by a stable partition, O(samples); only the others are sorted.  Both give
-    exactly what ``np.argsort(np.where(U, T, inf), axis=0, kind="stable")``
-    gives.
+
+def _destinations(T, U):
+    """Flat sorted position of every cell, the number of usable cells per profile, and T sorted.
+
+    The order is the stable argsort of T with the unusable cells (U False)
+    moved to the end.  Profiles whose usable times already increase (the
+    usual case) are ordered by a stable partition, O(samples); only the
+    others are sorted.  Both give exactly what
+    ``np.argsort(np.where(U, T, inf), axis=0, kind="stable")`` gives.
     """
     M, P = T.shape
     rows = np.arange(M)[:, None]
-    nu = running_count(U)  # usable samples up to and including each row
-    dest = np.where(U, nu - 1, nu[-1] + rows - nu)  # usable first, each group in input order
     profiles = np.arange(P)
-    order = np.empty((M, P), dtype=np.intp)
-    order.reshape(-1)[(dest * P + profiles).reshape(-1)] = np.repeat(np.arange(M), P)
-    ts = T.reshape(-1).take(order * P + profiles)
-    both_usable = rows[1:] < nu[-1]
-    out_of_order = np.flatnonzero(((ts[1:] <= ts[:-1]) & both_usable).any(axis=0))
+    nu = running_count(U)  # usable samples up to and including each row
+    n_usable = nu[-1].copy()
+    dest = np.where(U, nu - 1, n_usable + rows - nu)  # usable first, each group in input order
+    dest *= P
+    dest += profiles
+    Ts = _scatter(T, dest)
+    out_of_order = np.flatnonzero(((Ts[1:] <= Ts[:-1]) & (rows[1:] < n_usable)).any(axis=0))
     if out_of_order.size:
         key = np.where(U[:, out_of_order], T[:, out_of_order], np.inf)
-        order[:, out_of_order] = np.argsort(key, axis=0, kind="stable")
-    return order
+        order = np.argsort(key, axis=0, kind="stable")
+        Ts[:, out_of_order] = np.take_along_axis(T[:, out_of_order], order, axis=0)
+        sorted_row = np.empty_like(order)
+        np.put_along_axis(sorted_row, order, np.broadcast_to(rows, order.shape), axis=0)
+        dest[:, out_of_order] = sorted_row * P + out_of_order
+    return dest, n_usable, Ts
 
 
 def running_count(mask):

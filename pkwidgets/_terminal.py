@@ -53,17 +53,31 @@ def fit_terminal_phase(ordered: SortedSamples, exposure: Exposure, window_start,
     rows = np.arange(Ts.shape[0])[:, None]
     manual = ~np.isnan(window_start)
     after_peak = rows >= exposure.i_max + (0 if route == "iv-bolus" else 1)
-    cand_auto = positive & ~Xs & after_peak & (rows <= exposure.i_last)
-    with np.errstate(invalid="ignore"):
-        eps = 1e-9 * np.maximum(1.0, np.abs(window_end))
-        cand_man = positive & ~Xs & (Ts >= window_start - eps) & (Ts <= window_end + eps)
-    candidate = np.where(manual, cand_man, cand_auto)
+    kept = positive & ~Xs
+    candidate = kept & after_peak & (rows <= exposure.i_last)
+    if manual.any():  # windows given by hand: their candidates replace the automatic ones
+        with np.errstate(invalid="ignore"):
+            eps = 1e-9 * np.maximum(1.0, np.abs(window_end))
+            cand_man = kept & (Ts >= window_start - eps) & (Ts <= window_end + eps)
+        candidate = np.where(manual, cand_man, candidate)
     tmax = exposure.tmax if route == "extravascular" else None
     fit = fit_lambda_z(Ts, ordered.value, candidate, manual, axis=0, rule=rule, tmax=tmax,
                        compare=COMPARISON_RULE.get(rule, "adjusted-r2"))
     with np.errstate(invalid="ignore"):
-        margin = np.where(fit.df >= 1, stats.t.ppf(0.975, np.maximum(fit.df, 1)) * fit.se, np.nan)
+        margin = np.where(fit.df >= 1, _t_quantile(0.975, fit.df) * fit.se, np.nan)
     cols = np.arange(Ts.shape[1])
-    first = np.where(exposure.positive.any(axis=0), Ts[np.argmax(exposure.positive, axis=0), cols], np.nan)
+    first = np.where(exposure.positive.any(axis=0), Ts[exposure.i_first, cols], np.nan)
     return TerminalPhase(fit, np.where(exposure.measurable, fit.lamz, np.nan), manual, margin,
                          fit.lamz_compare, first)
+
+
+def _t_quantile(level, df):
+    """``scipy.stats.t.ppf(level, max(df, 1))`` per profile, evaluated once per distinct ``df``.
+
+    ``df`` takes few values (points - 2), so the quantiles of 1 ... max(df)
+    are computed once and looked up: the same numbers as one call per profile.
+    """
+    d = np.maximum(df, 1)
+    if d.size == 0:
+        return np.zeros(d.shape)
+    return stats.t.ppf(level, np.arange(1, int(d.max()) + 1, dtype=d.dtype))[d - 1]

@@ -46,6 +46,7 @@ from ._docs import fill_doc
 from ._exposure import measure_exposure
 from ._flags import reported_values, review_flags, sample_status
 from ._inputs import ProfileArrays, prepare_inputs
+from ._memory import keep_heap
 from ._regimen import regimen_values
 from ._sorting import sort_samples
 from ._terminal import fit_terminal_phase
@@ -159,6 +160,7 @@ def nca_arrays(time, conc, *, options=None, dose=None, route="extravascular", du
     ...
     ValueError: time 1.0 appears twice in profile 0; each profile needs distinct sampling times (average replicates or drop one).
     """
+    keep_heap()  # glibc: keep freed chunk temporaries for reuse (pkwidgets._memory); no effect on results
     opts = build_options(options, route=route, auc_method=auc_method, duration=_scalar(duration),
                          tau=_scalar(tau), terminal=terminal, partial=partial, blq_rules=blq_rules, qc=qc,
                          lambda_z_rule=lambda_z_rule)

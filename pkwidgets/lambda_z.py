@@ -37,6 +37,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from . import terminal_rules
+from ._rows import first_true, last_true
 from .terminal_rules import ADJ_R2_TOLERANCE, WindowStats
 
 __all__ = ["LambdaZFit", "fit_lambda_z", "fit_lambda_z_samples_major", "fit_lambda_z_profiles_major",
@@ -101,7 +102,7 @@ def _window_stats(t, c, candidate):
     N, P = t.shape
     rows = np.arange(P)
     has_cand = candidate.any(axis=0)
-    last = N - 1 - np.argmax(candidate[::-1], axis=0)
+    last = last_true(candidate)
     tref = np.where(has_cand, t[last, rows], 0.0)
     with np.errstate(divide="ignore", invalid="ignore"):
         yref = np.where(has_cand, np.log(c[last, rows]), 0.0)
@@ -111,24 +112,46 @@ def _window_stats(t, c, candidate):
     lo, hi = int(np.argmax(any_row)), N - int(np.argmax(any_row[::-1]))
     cand_t = candidate[lo:hi]
     q = _suffix_sums(t[lo:hi], c[lo:hi], cand_t, tref, yref)
-    n, sx, sy, sxx, sxy, syy = (q[:, k] for k in range(6))
+    n, sx, sy = q[:, 0], q[:, 1], q[:, 2]
     with np.errstate(divide="ignore", invalid="ignore"):
-        cxx = sxx - sx * sx / n
-        cxy = sxy - sx * sy / n
-        cyy = syy - sy * sy / n
-        slope = cxy / cxx
-        r2 = np.minimum(cxy * cxy / (cxx * cyy), 1.0)
-        r2adj = 1.0 - (1.0 - r2) * (n - 1.0) / (n - 2.0)
-        sse = np.maximum(cyy - cxy * slope, 0.0)
+        cxx, cxy, cyy, slope, r2, r2adj, sse = _centred(q)
     return WindowStats(t=t[lo:hi], c=c[lo:hi], candidate=cand_t, lo=lo, hi=hi, tref=tref, yref=yref,
                        has_cand=has_cand, n=n, sx=sx, sy=sy, cxx=cxx, cxy=cxy, cyy=cyy, slope=slope,
                        r2=r2, r2adj=r2adj, sse=sse)
 
 
+def _centred(q):
+    r"""Centred sums, slope, :math:`R^2`, adjusted :math:`R^2` and SSE from the running sums ``q``.
+
+    The formulas of the module docstring, operation for operation as
+    ``cxx = sxx - sx * sx / n`` etc. would evaluate them (so the same
+    numbers), with the temporaries written in place: the centred sums
+    overwrite the raw sums of squares and products in ``q``.
+    """
+    n, sx, sy, sxx, sxy, syy = (q[:, k] for k in range(6))
+    tmp = np.empty(n.shape)
+    for a, b, raw in ((sx, sx, sxx), (sx, sy, sxy), (sy, sy, syy)):  # c.. = s.. - a * b / n
+        np.multiply(a, b, out=tmp)
+        tmp /= n
+        raw -= tmp
+    cxx, cxy, cyy = sxx, sxy, syy
+    slope = cxy / cxx
+    r2 = cxy * cxy  # min(cxy * cxy / (cxx * cyy), 1)
+    r2 /= np.multiply(cxx, cyy, out=tmp)
+    np.minimum(r2, 1.0, out=r2)
+    r2adj = np.subtract(1.0, r2)  # 1 - (1 - r2) * (n - 1) / (n - 2)
+    r2adj *= np.subtract(n, 1.0, out=tmp)
+    r2adj /= np.subtract(n, 2.0, out=tmp)
+    np.subtract(1.0, r2adj, out=r2adj)
+    sse = np.subtract(cyy, np.multiply(cxy, slope, out=tmp))  # max(cyy - cxy * slope, 0)
+    np.maximum(sse, 0.0, out=sse)
+    return cxx, cxy, cyy, slope, r2, r2adj, sse
+
+
 def _manual_window(w):
     """The whole candidate set of each profile, from its first point (at least 2, declining)."""
     rows = np.arange(w.n.shape[1])
-    start = np.argmax(w.candidate, axis=0)
+    start = first_true(w.candidate)
     n_manual = w.n[start, rows]
     has = w.has_cand & (n_manual >= 2) & (w.slope[start, rows] < 0)
     return start, has
@@ -138,9 +161,11 @@ def _assemble(w, start, has, shape):
     """Pick each profile's window row from the suffix statistics into a :class:`LambdaZFit`."""
     N, P = shape
     rows = np.arange(P)
+    flat = start * P + rows
 
-    def pick(a):  # a is (rows lo:hi) x profiles
-        return np.where(has, a[start, rows], np.nan)
+    def pick(a):  # a is (rows lo:hi) x profiles: a[start, rows], by a flat take where a is contiguous
+        at = a.reshape(-1).take(flat) if a.flags.c_contiguous else a[start, rows]
+        return np.where(has, at, np.nan)
 
     b = pick(w.slope)
     npts = pick(w.n)
@@ -174,10 +199,11 @@ def _assemble(w, start, has, shape):
 
 def _fit_samples_major(t, c, candidate, manual, rule, options, compare=None):
     w = _window_stats(t, c, candidate)
-    start_auto, has_auto = terminal_rules.choose_window(w, rule, **options)
-    start_manual, has_manual = _manual_window(w)
-    start = np.where(manual, start_manual, start_auto)
-    has = np.where(manual, has_manual, has_auto)
+    start, has = terminal_rules.choose_window(w, rule, **options)
+    if manual.any():  # windows given by hand replace the rule's choice
+        start_manual, has_manual = _manual_window(w)
+        start = np.where(manual, start_manual, start)
+        has = np.where(manual, has_manual, has)
     fit = _assemble(w, start, has, t.shape)
     if compare is not None:  # a second rule on the same suffix statistics (no second pass over the data)
         rule2, options2 = compare
