@@ -83,6 +83,7 @@ from numbers import Integral, Real
 import numpy as np
 from scipy import stats
 
+from ._rows import first_true
 from .choices import check_choice
 
 __all__ = ["TERMINAL_RULES", "ADJ_R2_TOLERANCE", "OFF_LINE_LEVELS", "EXTENSION_RUN", "FIRM_BELOW_LEVEL", "WindowStats",
@@ -135,8 +136,8 @@ class WindowStats:
 
 
 def _first_row(mask):
-    """First row where ``mask`` holds, and whether it holds anywhere (per profile)."""
-    return np.argmax(mask, axis=0), mask.any(axis=0)
+    """First row where ``mask`` holds (0 where none, as ``np.argmax``), and whether it holds anywhere."""
+    return first_true(mask), mask.any(axis=0)
 
 
 def _at(a, start):
@@ -186,11 +187,6 @@ def _aicc(w, *, min_points):
     return start, ok.any(axis=0)
 
 
-def _shift_up(a, fill):
-    """``a[i + 1]`` at row ``i`` (the window that starts after sample ``i``)."""
-    return np.concatenate([a[1:], np.full((1,) + a.shape[1:], fill, dtype=a.dtype)])
-
-
 #: Floor of the residual scale (ln units, 0.01 % in concentration): far below any assay's precision, and above the
 #: rounding of the running-sum SSE (about 1e-7 to 1e-6), so exact or nearly exact data give decisions on their
 #: shape, not on rounding, and do not change when concentrations are scaled (our choice).
@@ -203,19 +199,24 @@ def _prediction_residuals(w, seed):
     Row ``i`` compares the point at sample ``i`` with the line fitted to the
     candidates after it (the suffix window of row ``i + 1``); returns the
     residuals and their degrees of freedom (NaN / 0 where that window has
-    fewer than ``seed`` points).
+    fewer than ``seed`` points, and on the last row, which has no window after it).
     """
-    n1, sx1, sy1 = _shift_up(w.n, 0.0), _shift_up(w.sx, 0.0), _shift_up(w.sy, 0.0)
-    cxx1, b1, sse1 = _shift_up(w.cxx, np.nan), _shift_up(w.slope, np.nan), _shift_up(w.sse, np.nan)
-    tested = w.candidate & (n1 >= seed)
+    resid, df = np.full(w.n.shape, np.nan), np.zeros(w.n.shape, dtype=np.int64)
+    if w.n.shape[0] < 2:
+        return resid, df
+    n1, sx1, sy1, cxx1, b1, sse1 = w.n[1:], w.sx[1:], w.sy[1:], w.cxx[1:], w.slope[1:], w.sse[1:]
+    candidate = w.candidate[:-1]
+    tested = candidate & (n1 >= seed)
     with np.errstate(divide="ignore", invalid="ignore"):
-        x0 = np.where(w.candidate, w.t, w.tref) - w.tref
-        y0 = np.log(np.where(w.candidate, w.c, 1.0)) - w.yref
+        x0 = np.where(candidate, w.t[:-1], w.tref) - w.tref
+        y0 = np.log(np.where(candidate, w.c[:-1], 1.0)) - w.yref
         xbar = sx1 / n1
-        resid = y0 - (sy1 / n1 + b1 * (x0 - xbar))
+        r = y0 - (sy1 / n1 + b1 * (x0 - xbar))
         scale = np.sqrt(sse1 / (n1 - 2.0) * (1.0 + 1.0 / n1 + (x0 - xbar) ** 2 / cxx1))
-        resid = resid / np.maximum(scale, RESIDUAL_FLOOR)
-    return np.where(tested, resid, np.nan), np.where(tested, n1 - 2, 0).astype(np.int64)
+        r = r / np.maximum(scale, RESIDUAL_FLOOR)
+    resid[:-1] = np.where(tested, r, np.nan)
+    df[:-1] = np.where(tested, n1 - 2, 0)
+    return resid, df
 
 
 def _off_line(w, levels, seed):
