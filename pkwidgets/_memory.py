@@ -5,7 +5,7 @@ about 1 MB.  With glibc's dynamic defaults, freed memory at the top of the
 heap is given back to the operating system as soon as more than about twice
 the largest recently freed block is free, so the next chunk takes the same
 memory back page by page: on a 2-core machine shared with other jobs,
-``bench/nca_speed.py --heap`` measured these page faults at 7,000 per chunk
+``bench/nca_speed.py --base`` (fresh-process rows) measured these page faults at 7,000 per chunk
 of 8192 profiles and about half of the engine's CPU time (system time).
 
 :func:`keep_heap` sets, once per process, the two glibc thresholds to the
