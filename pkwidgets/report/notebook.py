@@ -194,7 +194,7 @@ def analysis_setup(*, data_path, output_dir, columns, time_unit, conc_unit, dose
     ...                auc_method="linear", blq_rules=None, group_by=None, selection_record=None)
     Traceback (most recent call last):
     ...
-    ValueError: columns: unknown role(s) ['subjct']; roles are subject, time, conc, dose, period, day, treatment, analyte, blq, lloq, nominal_time, tau, duration. Required role(s) ['subject'] missing: map each to its column name in d.csv, e.g. columns={'subject': 'ID', ...}.
+    ValueError: columns: unknown role(s) ['subjct']; roles are subject, time, conc, dose, period, day, treatment, analyte, specimen, blq, lloq, nominal_time, tau, duration. Required role(s) ['subject'] missing: map each to its column name in d.csv, e.g. columns={'subject': 'ID', ...}.
     """
     roles = _check_roles(columns, data_path)
     by = [roles["subject"]] + [roles[r] for r in _KEY_ROLES if r in roles]
