@@ -122,6 +122,11 @@ def test_steady_state_notebook_on_sdtm_equals_the_long_table(theoph_sdtm, tmp_pa
     np.testing.assert_allclose(second["ARCMAX"], 1.0, rtol=1e-12)
     pp = pd.read_csv(tmp_path / "ss" / "pp.csv")
     assert set(pp["USUBJID"]) == set(got["USUBJID"]) and "AUCTAU" in set(pp["PPTESTCD"])
+    book = pytest.importorskip("openpyxl").load_workbook(tmp_path / "ss" / "results.xlsx", read_only=True)
+    sheet = book["Parameters"]
+    header = [c.value for c in next(sheet.iter_rows(max_row=1))]
+    assert any(h and h.startswith("AUCTAU (") and "mg/L" in h for h in header)  # the unit in the header
+    assert sum(1 for _ in sheet.iter_rows(min_row=2)) == len(got)  # one row per profile
 
 
 def test_partial_auc_notebook_on_sdtm_equals_the_long_table(theoph_sdtm, tmp_path):
