@@ -244,8 +244,8 @@ def _off_line(w, levels, seed):
     k, tested = np.maximum(df, 1) - 1, df > 0
     quantiles = (levels[0], levels[1], max(levels[1], FIRM_BELOW_LEVEL), max(levels[0], FIRM_ABOVE_LEVEL))
     t_up, t_lo, t_firm, t_firm_up = (np.take(stats.t.ppf(q, dfs), k) for q in quantiles)
-    masks = (tested & (resid > t_up), tested & (resid < -t_lo), tested & (resid < -t_firm), tested & (resid > t_firm_up))
-    return masks, resid
+    masks = (resid > t_up, resid < -t_lo, resid < -t_firm, resid > t_firm_up)
+    return tuple(tested & m for m in masks), resid
 
 
 def _next_candidate(w, row):
