@@ -38,14 +38,22 @@ Rules
     consecutive earlier points that lie off the line of the window after
     them on the same side (all above it, or all below it; a point on the
     line or on the other side ends a run).  A shorter run that reaches the
-    first candidate also stops it: a run above the line always, a run below
-    it only when one of its points has :math:`r_0 < -t_{0.95,\,n-2}`
-    (``FIRM_BELOW_LEVEL``).  The window then starts two candidates after the latest
+    first candidate also stops it: a run below the line only when one of its
+    points has :math:`r_0 < -t_{0.95,\,n-2}` (``FIRM_BELOW_LEVEL``); a run
+    above it when it holds two points or more, when more than ``SHORT_TAIL``
+    (4) candidates follow it, or when its lone point has
+    :math:`r_0 > t_{0.90,\,n-2}` (``FIRM_ABOVE_LEVEL``: with few points left,
+    dropping one costs much precision, so one noisy high point must be
+    clearly high).  The window then starts two candidates after the latest
     point of that run: the point at the edge of a bend is left out as well
     (a one-point margin, kept only while more than ``min_points`` points
-    remain).  With ``tmax`` given (extravascular dosing) the window also
-    starts no earlier than :math:`2\,t_{max}` while at least ``min_points``
-    points remain there (the two-tmax rule as a floor).  A point is above
+    remain), except after a run above the line when the edge point's own
+    residual (against the window after it) is :math:`r_0 < -2.5`
+    (``EDGE_KEEP_RESIDUAL``): a point far below the line is no
+    distribution-phase point, and it stays in.  With ``tmax`` given
+    (extravascular dosing) the window also starts no earlier than
+    :math:`2\,t_{max}` while at least ``min_points`` points remain there
+    (the two-tmax rule as a floor).  A point is above
     the line when its studentised prediction residual is above the one-sided
     ``off_line_levels[0]`` (0.70) quantile, below it when the residual is
     below minus the ``off_line_levels[1]`` (0.90) quantile of Student's t
@@ -67,7 +75,8 @@ Rules
     sensitive one, and a lone low point at the start (often the absorption
     tail of a one-compartment profile, or noise) stops the rule only when it
     is far below.  Requiring a run makes one noisy point harmless.  The
-    levels, the run length, the firm level and the margin are our choice,
+    levels, the run length, the firm levels, ``SHORT_TAIL``, the margin and
+    its exception are our choice,
     tuned on ``bench/terminal_accuracy.py`` (one- and two-compartment, IV and
     oral, rich and sparse designs; tuned on seed 1 at 15 % residual error,
     checked on other seeds and at 10 % and 25 %); no source.  All residuals
@@ -86,8 +95,9 @@ from scipy import stats
 from ._rows import first_true
 from .choices import check_choice
 
-__all__ = ["TERMINAL_RULES", "ADJ_R2_TOLERANCE", "OFF_LINE_LEVELS", "EXTENSION_RUN", "FIRM_BELOW_LEVEL", "WindowStats",
-           "choose_window", "rule_options", "window_aicc"]
+__all__ = ["TERMINAL_RULES", "ADJ_R2_TOLERANCE", "OFF_LINE_LEVELS", "EXTENSION_RUN", "FIRM_BELOW_LEVEL",
+           "FIRM_ABOVE_LEVEL", "SHORT_TAIL", "EDGE_KEEP_RESIDUAL", "WindowStats", "choose_window", "rule_options",
+           "window_aicc"]
 
 #: Automatic terminal-window rules, in the order the documentation lists them.
 TERMINAL_RULES = ("adjusted-r2", "two-tmax", "last-n", "aicc", "tail-extension")
@@ -100,6 +110,14 @@ EXTENSION_RUN = 4
 #: One-sided t level below the line that a short run of low points reaching the first candidate must pass at one
 #: point at least before it stops the "tail-extension" rule (our choice, tuned on ``bench/terminal_accuracy.py``).
 FIRM_BELOW_LEVEL = 0.95
+#: One-sided t level above the line that a lone point at the first candidate must pass before it stops the
+#: "tail-extension" rule when at most ``SHORT_TAIL`` candidates follow it (our choice, tuned on
+#: ``bench/terminal_accuracy.py``).
+FIRM_ABOVE_LEVEL = 0.90
+SHORT_TAIL = 4
+#: Studentised residual below which the edge point after a bend above the line stays in the window (our choice,
+#: tuned on ``bench/terminal_accuracy.py``).
+EDGE_KEEP_RESIDUAL = -2.5
 #: Residual SD floor (ln units) of the AICc: rounding-level residuals of exact data stay finite.
 _SD_FLOOR = 1e-12
 
@@ -220,13 +238,14 @@ def _prediction_residuals(w, seed):
 
 
 def _off_line(w, levels, seed):
-    """Candidates above the upper bound, below the lower bound, and below the firm lower bound (three masks)."""
+    """Off-line masks of the candidates (above, below, firm below, firm above) and their residuals."""
     resid, df = _prediction_residuals(w, seed)
     dfs = np.arange(1, w.n.shape[0] + 1)
     k, tested = np.maximum(df, 1) - 1, df > 0
-    quantiles = (levels[0], levels[1], max(levels[1], FIRM_BELOW_LEVEL))
-    t_up, t_lo, t_firm = (np.take(stats.t.ppf(q, dfs), k) for q in quantiles)
-    return tested & (resid > t_up), tested & (resid < -t_lo), tested & (resid < -t_firm)
+    quantiles = (levels[0], levels[1], max(levels[1], FIRM_BELOW_LEVEL), max(levels[0], FIRM_ABOVE_LEVEL))
+    t_up, t_lo, t_firm, t_firm_up = (np.take(stats.t.ppf(q, dfs), k) for q in quantiles)
+    masks = (resid > t_up, resid < -t_lo, resid < -t_firm, resid > t_firm_up)
+    return tuple(tested & m for m in masks), resid
 
 
 def _next_candidate(w, row):
@@ -234,12 +253,13 @@ def _next_candidate(w, row):
     return _first_row(w.candidate & (np.arange(w.n.shape[0])[:, None] > row))
 
 
-def _bend_cut(above, below, firm_below, candidate, run):
+def _bend_cut(above, below, firm_below, firm_above, candidate, run):
     """Latest row of the first one-sided run of ``run`` off-line candidates met going backwards (-1: none).
 
     Points above and points below the line count in separate runs (a point on the other side or on the
-    line ends a run).  A shorter run that reaches the first candidate stops the rule too: above the line
-    always, below it only when one of its points is below the firm bound.
+    line ends a run).  A shorter run that reaches the first candidate stops the rule too: below the line
+    only when one of its points is below the firm bound; above it when it holds two points or more, when
+    more than ``SHORT_TAIL`` candidates follow it, or when its one point is above the firm bound.
     """
     P = above.shape[1]
     n_up, n_lo, top_up, top_lo = np.zeros(P, np.int64), np.zeros(P, np.int64), np.full(P, -1), np.full(P, -1)
@@ -253,16 +273,21 @@ def _bend_cut(above, below, firm_below, candidate, run):
         n_lo = np.where(lo, n_lo + 1, np.where(active, 0, n_lo))
         hit_up, hit_lo = active & (n_up >= run), active & (n_lo >= run)
         cut, done = np.where(hit_up, top_up, np.where(hit_lo, top_lo, cut)), done | hit_up | hit_lo
-    end_up, end_lo = ~done & (n_up > 0), ~done & (n_lo > 0) & firm  # a shorter run reaching the first candidate
+    # a shorter run reaching the first candidate; a lone point above needs the firm bound when few points follow
+    sure_up = (n_up > 1) | (candidate.sum(axis=0) > SHORT_TAIL + 1) | _at(firm_above, np.maximum(top_up, 0))
+    end_up, end_lo = ~done & (n_up > 0) & sure_up, ~done & (n_lo > 0) & firm
     return np.where(end_up, top_up, np.where(end_lo, top_lo, cut))
 
 
 def _tail_extension(w, *, min_points, off_line_levels, run, tmax):
     seed = max(int(min_points), 3)
-    cut = _bend_cut(*_off_line(w, off_line_levels, seed), w.candidate, run)
+    (above, below, firm_below, firm_above), resid = _off_line(w, off_line_levels, seed)
+    cut = _bend_cut(above, below, firm_below, firm_above, w.candidate, run)
     start, has = _next_candidate(w, cut)
-    margin, _ = _next_candidate(w, start)  # after a bend, its edge point stays out as well
-    start = np.where((cut >= 0) & (_at(w.n, start) > seed), margin, start)
+    margin, _ = _next_candidate(w, start)  # after a bend, its edge point stays out as well ...
+    with np.errstate(invalid="ignore"):  # ... unless the bend is above the line and the edge point far below it
+        kept = _at(above, np.maximum(cut, 0)) & (_at(resid, start) < EDGE_KEEP_RESIDUAL)
+    start = np.where((cut >= 0) & (_at(w.n, start) > seed) & ~kept, margin, start)
     if tmax is not None:  # extravascular: not before 2 x TMAX while enough points remain
         with np.errstate(invalid="ignore"):
             floor, has_floor = _first_row(w.candidate & (w.t >= 2.0 * np.asarray(tmax, dtype=float)))
