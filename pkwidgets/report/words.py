@@ -33,8 +33,8 @@ _LAMBDA_Z = {
     "aicc": "the window with the lowest small-sample Akaike criterion (at least 4 points)",
     "tail-extension": "the last 3 points after CMAX, extended backwards while earlier points stay on the "
                       "line within its own prediction noise (a run of 4 points on one side of the line stops it, a "
-                      "shorter run at the start only when above it or far below; the edge point of the bend "
-                      "stays out; not before 2 x TMAX for extravascular doses); "
+                      "shorter run at the start only when clearly off the line; the edge point of the bend "
+                      "stays out unless far below the line; not before 2 x TMAX for extravascular doses); "
                       "pkwidgets' own rule, measured in bench/terminal_accuracy.py",
 }
 #: Reviewer-check threshold -> (sentence, source).
