@@ -42,6 +42,7 @@ from .sections import (concentration_listing, left_out_table, mean_n_table, mean
 from .figure_pages import fit_caption, plot_profile_pages
 from .words import flag_counts, rules_in_words, run_counts
 from .pdf import write_pdf
+from .comparison_tables import listing_table, proportionality_table, ratio_table, tmax_table
 from .study_input import (DATA_FORMATS, StudyInput, input_exports, input_info, input_tables, read_study,
                           write_sdtm_outputs)
 
@@ -49,6 +50,10 @@ from .study_input import (DATA_FORMATS, StudyInput, input_exports, input_info, i
 _header_html = header_html
 
 __all__ = [
+    "listing_table",
+    "proportionality_table",
+    "ratio_table",
+    "tmax_table",
     "DATA_FORMATS",
     "StudyInput",
     "input_exports",
