@@ -91,12 +91,13 @@ def proportionality_table(table, *, sig=3):
     return [shown] + [Caption(f"{p}: {c}") for p, c in zip(table["parameter"], table["conclusion"])]
 
 
-def listing_table(frame, empty, *, keys=(), caption="", sig=3, index="term"):
+def listing_table(frame, empty, *, keys=(), caption="", sig=3, index=None):
     """A listing (values not used, incomplete subjects, an ANOVA table) or the words ``empty`` when it has no row.
 
-    A labelled index (e.g. the terms of an ANOVA table) becomes the first column, named ``index``.
+    ``index``: name of a first column made from the frame's index (e.g. ``"term"`` for an ANOVA table);
+    None leaves the index out (row labels carry no information a column does not).
     """
     if not len(frame):
         return Caption(empty)
-    frame = frame.reset_index(names=index) if not isinstance(frame.index, pd.RangeIndex) else frame
+    frame = frame.reset_index(names=index) if index else frame.reset_index(drop=True)
     return report_table(frame, keys=[k for k in keys if k in frame.columns], sort=False, sig=sig, caption=caption)
