@@ -42,6 +42,7 @@ EX_REQUIRED = ("USUBJID", "EXSTDTC", "EXDOSE", "EXDOSU")
 PC_KEEP = ("STUDYID", "USUBJID", "PCSEQ", "PCTESTCD", "PCTEST", "PCSPEC", "VISIT", "VISITNUM", "PCTPT",
            "PCTPTNUM", "PCELTM")
 DATE_ONLY_OPTIONS = ("midnight", "unplaced")
+MULTI_DOSE_ADVICE = "add 'dose_number' to by= so that each dose is its own profile."  # ends the note on several doses
 
 
 @dataclass
@@ -385,7 +386,7 @@ def _placement_notes(long):
     multi = per[per > 1]
     if len(multi):
         notes.append(f"{len(multi)} profile(s) have samples after more than one dose (e.g. {multi.index[0]}): "
-                     "add 'dose_number' to by= so that each dose is its own profile.")
+                     + MULTI_DOSE_ADVICE)
     return notes
 
 

@@ -122,18 +122,16 @@ def read_study(data_format="long", *, data_path=None, columns=None, units=None, 
     units = dict(units or {})
     if data_format == "long":
         return StudyInput(data=data_path, data_path=data_path, columns=dict(columns or {}), units=units)
-    from ..sdtm import read_sdtm
+    from ..sdtm import MULTI_DOSE_ADVICE, read_sdtm
 
     with warnings.catch_warnings():  # the assumptions made are shown in the record as notes, not as warnings
         warnings.simplefilter("ignore", UserWarning)
         read = read_sdtm(pc_path, ex_path, analyte=analyte, specimen=specimen, date_only_dose=date_only_dose,
                          details=True)
     given, roles = dict(columns or {}), list(roles)
-    doses = read.long.groupby(["USUBJID", "PCTESTCD", "PCSPEC"])["dose_number"].nunique()
-    if not roles and (doses > 1).any():  # samples after several doses: each dose its own profile
-        roles = ["day"]
-        read.notes.append(f"{int((doses > 1).sum())} subject-analyte-specimen group(s) have samples after more than "
-                          "one dose: each dose is its own profile (key dose_number).")
+    several = any(MULTI_DOSE_ADVICE in n for n in read.notes)  # the reader's note on samples after several doses
+    if several and not roles:
+        roles = ["day"]  # each dose its own profile
     columns = dict(SDTM_ROLES, **{r: SDTM_EXTRA_ROLES[r] for r in roles})
     if ex_path is None:
         columns.pop("dose")
@@ -144,7 +142,9 @@ def read_study(data_format="long", *, data_path=None, columns=None, units=None, 
     notes = [f"units from the SDTM domains (PCSTRESU, EXDOSU): {shown}"
              + (f"; the notebook's {' and '.join(unused)} {'is' if len(unused) == 1 else 'are'} not used" if unused
                 else "")]
-    read_notes = [n for n in read.notes if "dose_number" not in columns.values() or "add 'dose_number' to by" not in n]
+    # once dose_number is a profile key, the reader's advice to make it one is replaced by saying so
+    read_notes = [n.replace(MULTI_DOSE_ADVICE, "each dose is its own profile (key dose_number).")
+                  if "dose_number" in columns.values() else n for n in read.notes]
     renamed = {given[r]: c for r, c in columns.items() if given.get(r) and given[r] != c}
     return StudyInput(data=read.long, data_path=pc_path, columns=columns, units=dict(read.units),
                       data_format="sdtm", sdtm=read, ex_path=ex_path, notes=tuple(notes + read_notes),
