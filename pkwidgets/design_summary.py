@@ -142,15 +142,16 @@ def design_info(result, *, notebook, parameters, now=None) -> dict:
     the profiles are simulated; the seed makes the run repeatable)."""
     import datetime as _dt
 
-    from . import __version__
-    from .report import CAUTION
+    from .report import CAUTION, software_versions
 
     now = now or _dt.datetime.now(_dt.timezone.utc)
+    software = software_versions()
     return _plain({
         "notebook": notebook,
         "data_file": "none: virtual subjects simulated from the model (synthetic)",
         "data_sha256": "",
-        "pkwidgets_version": __version__,
+        "pkwidgets_version": software["pkwidgets"],
+        "software": software,
         "date": now.replace(microsecond=0).isoformat(),
         "parameters": parameters,
         "settings": {**result.settings, "schedules": result.schedules},

@@ -17,7 +17,9 @@ One concern per module:
 - :mod:`~pkwidgets.report.sections`: terminal phase, concentration listing, unused rows, mean-profile data;
 - :mod:`~pkwidgets.report.figure_pages`: individual profiles as small multiples captioned with λz;
 - :mod:`~pkwidgets.report.words`: the first page's settings in words, counts and flags;
-- :mod:`~pkwidgets.report.pdf`: the record printed to PDF by headless Chromium.
+- :mod:`~pkwidgets.report.pdf`: the record printed to PDF by headless Chromium;
+- :mod:`~pkwidgets.report.comparison_tables` and :mod:`~pkwidgets.report.design_tables`: record tables of
+  treatment comparisons, dose proportionality and sampling-design evaluations.
 
 Importing this package imports neither matplotlib, nbconvert, papermill nor
 the widgets; each is imported by the function that needs it.
@@ -43,6 +45,7 @@ from .figure_pages import fit_caption, plot_profile_pages
 from .words import flag_counts, rules_in_words, run_counts
 from .pdf import write_pdf
 from .comparison_tables import listing_table, proportionality_table, ratio_table, tmax_table
+from .design_tables import error_table, estimable_table, flag_share_table, model_table, schedule_table
 from .study_input import (DATA_FORMATS, StudyInput, input_exports, input_info, input_tables, read_study,
                           write_sdtm_outputs)
 
@@ -50,6 +53,11 @@ from .study_input import (DATA_FORMATS, StudyInput, input_exports, input_info, i
 _header_html = header_html
 
 __all__ = [
+    "error_table",
+    "estimable_table",
+    "flag_share_table",
+    "model_table",
+    "schedule_table",
     "listing_table",
     "proportionality_table",
     "ratio_table",

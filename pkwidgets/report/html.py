@@ -80,6 +80,20 @@ def find_run_info(notebook_path, nb=None) -> dict:
         return json.load(fh)
 
 
+#: MIME type of a live widget's output (its plain-text fallback is the widget's state when it was first shown).
+_WIDGET_VIEW = "application/vnd.jupyter.widget-view+json"
+
+
+def _drop_widget_views(nb) -> None:
+    """Leave live widgets out of the record: a static page runs none, and the plain text saved beside a
+    widget is its state when first shown (a progress bar at 0 %), not its last state.  The widget state
+    in the metadata goes too (it would need CDN scripts).  The executed notebook keeps both."""
+    nb.metadata.pop("widgets", None)
+    for cell in nb.cells:
+        if cell.get("cell_type") == "code":
+            cell.outputs = [o for o in cell.get("outputs", []) if _WIDGET_VIEW not in o.get("data", {})]
+
+
 def write_record(notebook_path, html_path=None, *, info=None, hide_code=True, pdf=False) -> str:
     """Write the offline HTML record of an executed analysis notebook.
 
@@ -118,7 +132,7 @@ def write_record(notebook_path, html_path=None, *, info=None, hide_code=True, pd
     html_path = html_path or os.path.splitext(notebook_path)[0] + ".html"
     nb = nbformat.read(notebook_path, as_version=4)
     info = _info_for_page(find_run_info(notebook_path, nb) if info is None else info)
-    nb.metadata.pop("widgets", None)  # a static page runs no widgets; their state would need CDN scripts
+    _drop_widget_views(nb)
     exporter = HTMLExporter(template_name="lab", extra_template_paths=[TEMPLATES], template_file=_RECORD,
                             exclude_input=hide_code, exclude_input_prompt=hide_code,
                             exclude_output_prompt=hide_code, embed_images=True)
