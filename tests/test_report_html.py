@@ -221,3 +221,23 @@ def test_infusion_duration_as_a_parameter_or_a_column_role():
     assert by_value.nca_options["duration"] == 0.5 and by_column.nca_options["duration"] == "DUR"
     assert {"CLO", "VZO", "VSSO", "MRTIVIFO"} <= set(parameter_set("iv-infusion"))
     assert "C0" not in parameter_set("iv-infusion")  # no back-extrapolated C0 for an infusion
+
+
+def test_first_page_rules_of_sparse_and_urine_runs_state_their_own_methods():
+    """The first page of a toxicokinetic or urine record states that analysis's rules, not the plasma NCA's
+    (no route, area rule or λz rule of a profile analysis where none applies).  Sources: Bailer, J
+    Pharmacokinet Biopharm 1988 (from memory) for the sparse method; the excretion-rate plot (Gibaldi &
+    Perrier, ch. 1, from memory) for urine."""
+    import pandas as pd
+
+    import pkwidgets as pk
+    from pkwidgets.report import rules_in_words
+
+    small = pd.DataFrame({"grp": "A", "time": [1, 1, 2, 2, 4, 4], "conc": [4, 6, 8, 10, 3, 5]})
+    sparse = dict(rules_in_words(pk.nca_sparse(small, group="grp", time="time", conc="conc").settings))
+    assert "Bailer" in sparse["Area rule"] and "95 %" in sparse["Interval"]
+    assert "Route" not in sparse and "Terminal phase (λz)" not in sparse
+    urine = dict(rules_in_words({"route": "extravascular", "plasma_auc": "AUCLST", "terminal": [4, 24],
+                                 "rules": "BLQ amount 0"}))
+    assert "from 4 to 24" in urine["Terminal phase (λz)"] and "BLQ amount 0" in urine["Collection rules"]
+    assert "Area rule" not in urine

@@ -38,7 +38,7 @@ from .notebook import (PARAMETER_HELP, ROLES, AnalysisSetup, analysis_setup, dat
 from .provenance import CAUTION, RUN_INFO, export_results, git_commit, run_info, sha256_file, software_versions
 from .staging import FAILED, MANIFEST, staged_folder, write_manifest
 from .parameter_sets import REGIMENS, parameter_set, shown_parameters
-from .tables import Caption, ReportTable, format_value, natural_sort, report_table, summary_table
+from .tables import Caption, ReportTable, format_value, natural_sort, report_table, settings_table, summary_table
 from .sections import (concentration_listing, left_out_table, mean_n_table, mean_profile_data, parameter_table,
                        terminal_phase_table, unused_table)
 from .figure_pages import fit_caption, plot_profile_pages
@@ -84,6 +84,7 @@ __all__ = [
     "parameter_table",
     "plot_profile_pages",
     "report_table",
+    "settings_table",
     "rules_in_words",
     "run_counts",
     "shown_parameters",

@@ -19,7 +19,7 @@ import numpy as np
 import pandas as pd
 
 __all__ = ["SIGNIFICANT", "MISSING", "COUNT_CODES", "format_value", "natural_key", "natural_sort", "unit_header",
-           "ReportTable", "report_table", "summary_table", "key_text", "Caption"]
+           "ReportTable", "report_table", "summary_table", "settings_table", "key_text", "Caption"]
 
 #: Significant figures of the values shown in the record (the CSV exports keep full precision).
 SIGNIFICANT = 3
@@ -245,6 +245,27 @@ def summary_table(summaries, *, group_by=(), group_units=None, sig=SIGNIFICANT, 
     return ReportTable(frame, keys=group_by + ["parameter"], numeric=numeric, caption=caption or
                        "TMAX, TLAG and counts: median (min–max) only; geometric statistics for ratio-scale "
                        "parameters only; — : not reported.")
+
+
+def _setting_text(value) -> str:
+    """A setting as plain words: lists joined by commas, mappings as ``name value`` pairs."""
+    if isinstance(value, dict):
+        return ", ".join(f"{k} {_setting_text(v)}" for k, v in value.items()) or MISSING
+    if isinstance(value, (list, tuple)):
+        return ", ".join(_setting_text(v) for v in value) or MISSING
+    return MISSING if value is None else (f"{value:g}" if isinstance(value, float) else str(value))
+
+
+def settings_table(settings, *, leave_out=(), caption="Settings of the analysis, as applied.") -> ReportTable:
+    """The settings of a result (a mapping) as a two-column record table, one setting per row.
+
+    Examples
+    --------
+    >>> settings_table({"group": ["dose", "sex"], "units": {"time": "h"}, "ci_level": 0.95}).frame.values.tolist()
+    [['group', 'dose, sex'], ['units', 'time h'], ['ci_level', '0.95']]
+    """
+    rows = [(str(k), _setting_text(v)) for k, v in settings.items() if k not in set(leave_out)]
+    return ReportTable(pd.DataFrame(rows, columns=["setting", "value"]), keys=["setting"], caption=caption)
 
 
 class Caption:

@@ -76,6 +76,10 @@ def rules_in_words(settings) -> list:
     >>> dict(rules_in_words({"route": "iv-bolus", "auc_method": "linear"}))["Area rule"]
     'linear trapezoidal rule throughout (AUC and AUMC).'
     """
+    if "animal_rule" in settings:
+        return _sparse_rules(settings)
+    if "plasma_auc" in settings:
+        return _urine_rules(settings)
     options = settings.get("options") or {}
     route = settings.get("route") or options.get("route")
     out = [("Route", _ROUTES.get(route, str(route)) + ".")]
@@ -97,6 +101,40 @@ def rules_in_words(settings) -> list:
     if checks:
         out.append(("Reviewer checks", "a profile is flagged when: " + "; ".join(checks) + "."))
     return out
+
+
+def _sparse_rules(settings) -> list:
+    """Rules of a sparse-sampling (toxicokinetic) run (:func:`pkwidgets.nca_sparse`)."""
+    start = settings.get("dose_time_conc")
+    level = settings.get("ci_level", 0.95)
+    return [
+        ("Design", f"sparse sampling: one mean profile per group at the nominal times; animal identifiers: "
+                   f"{settings.get('animal_rule', 'as given')}."),
+        ("Area rule", f"{settings.get('method', '')}."),
+        ("BLQ samples", f"{_BLQ.get(settings.get('blq'), settings.get('blq'))} in the mean at their time."),
+        ("Dose time", "the profile starts at the first sampled time." if start is None else
+                      f"a concentration of {start:g} at dose time when it was not sampled."),
+        ("Interval", f"{100 * level:g} % confidence interval of AUCLST (standard error of the mean-profile area)."),
+    ]
+
+
+def _urine_rules(settings) -> list:
+    """Rules of a urine-collection run (:func:`pkwidgets.nca_urine`)."""
+    terminal = settings.get("terminal", "auto")
+    window = (f"chosen by hand: interval midpoints from {terminal[0]:g} to {terminal[1]:g}"
+              if terminal != "auto" and terminal is not None else
+              "automatic: the window of the last 3 or more rates after the highest rate with the highest adjusted "
+              "R² (ties within 1e-4 go to the window with more points)")
+    route = settings.get("route")
+    return [
+        ("Route", _ROUTES.get(route, str(route)) + "."),
+        ("Amounts", "amount per collection = concentration x volume; excretion rate = amount / interval width, "
+                    "at the interval midpoint."),
+        ("Collection rules", f"{settings.get('rules', '')}."),
+        ("Terminal phase (λz)", f"from ln(excretion rate) against midpoints, {window}; log-linear least squares."),
+        ("Renal clearance", f"amount excreted / plasma {settings.get('plasma_auc')} over the same interval "
+                            "(when plasma data are given)."),
+    ]
 
 
 def run_counts(result, left_out=None) -> dict:
