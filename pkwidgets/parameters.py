@@ -218,6 +218,10 @@ PARAMETERS: dict[str, Parameter] = {
         _P("AUCTAU", "AUC Over Dosing Interval", "auc",
            "AUC from dose time to dose time + tau (interpolated, or lambda-z extrapolated).", True,
            steady_state=True),
+        # PPTEST seen in the CDISC PK Parameters codelist C85493 (C85570); PPTESTCD recalled
+        _P("AUMCTAU", "AUMC Over Dosing Interval", "aumc",
+           "Area under t*C from dose time to dose time + tau (interpolated with the segment's rule, or "
+           "lambda-z extrapolated).", True, steady_state=True),
         _P("CAVG", "Average Conc", "conc", "AUCTAU / tau.", True, steady_state=True,
            derive=lambda AUCTAU, tau: AUCTAU / tau),
         _P("FLUCP", "Fluctuation%", "percent", "100 * (CMAX - CMIN) / CAVG.", True, steady_state=True,

@@ -32,12 +32,12 @@ REGIMENS = {
     + ("CLO", "VZO", "VSSO", "MRTIVIFO", "AUCIFOD"),
     "iv-infusion": ("CMAX", "TMAX", "CLST", "TLST", "AUCLST", "AUCIFO", "AUCPEO") + LAMBDA_Z
     + ("CLO", "VZO", "VSSO", "MRTIVIFO", "CMAXD", "AUCIFOD"),
-    "steady-state extravascular": ("CMAX", "TMAX", "CMIN", "CTROUGH", "AUCTAU", "CAVG", "FLUCP", "SWING",
-                                   "CLFTAU", "VZFTAU", "AUCTAUD") + LAMBDA_Z + ("AILAMZ", "ARAUC", "ARCMAX"),
-    "steady-state iv-bolus": ("C0", "CMAX", "TMAX", "CMIN", "CTROUGH", "AUCTAU", "CAVG", "FLUCP", "SWING",
-                              "CLTAU", "VZTAU", "AUCTAUD") + LAMBDA_Z + ("AILAMZ", "ARAUC", "ARCMAX"),
-    "steady-state iv-infusion": ("CMAX", "TMAX", "CMIN", "CTROUGH", "AUCTAU", "CAVG", "FLUCP", "SWING",
-                                 "CLTAU", "VZTAU", "AUCTAUD") + LAMBDA_Z + ("AILAMZ", "ARAUC", "ARCMAX"),
+    "steady-state extravascular": ("CMAX", "TMAX", "CMIN", "CTROUGH", "AUCTAU", "AUMCTAU", "CAVG", "FLUCP",
+                                   "SWING", "CLFTAU", "VZFTAU", "AUCTAUD") + LAMBDA_Z + ("AILAMZ", "ARAUC", "ARCMAX"),
+    "steady-state iv-bolus": ("C0", "CMAX", "TMAX", "CMIN", "CTROUGH", "AUCTAU", "AUMCTAU", "CAVG", "FLUCP",
+                              "SWING", "CLTAU", "VZTAU", "AUCTAUD") + LAMBDA_Z + ("AILAMZ", "ARAUC", "ARCMAX"),
+    "steady-state iv-infusion": ("CMAX", "TMAX", "CMIN", "CTROUGH", "AUCTAU", "AUMCTAU", "CAVG", "FLUCP",
+                                 "SWING", "CLTAU", "VZTAU", "AUCTAUD") + LAMBDA_Z + ("AILAMZ", "ARAUC", "ARCMAX"),
 }
 
 _ROUTES = ("extravascular", "iv-bolus", "iv-infusion")
