@@ -22,7 +22,7 @@ PARTS = {
         Infusion duration (required for ``"iv-infusion"``).  A number goes into
         the options; an array gives one value per profile.
     tau : float or array_like (profiles,), optional
-        Dosing interval: adds AUCTAU, CMIN, CTROUGH, CAVG, FLUCP, SWING,
+        Dosing interval: adds AUCTAU, AUMCTAU, CMIN, CTROUGH, CAVG, FLUCP, SWING,
         CLFTAU/CLTAU and AILAMZ (per profile as ``duration``).
     auc_method : {"linear", "lin-up/log-down", "lin-log"}
     terminal : "auto", (start, end) or array_like (profiles, 2)
