@@ -143,6 +143,9 @@ def test_run_info_pins_data_and_selection_files_and_software(tmp_path):
     assert info["software"]["numpy"] == numpy.__version__ and info["software"]["python"] == platform.python_version()
     none = run_info(data, SimpleNamespace(settings={"selections": None}), notebook="x", parameters={})
     assert none["selection_file"] is None and none["selection_sha256"] is None
+    sparse = run_info(data, SimpleNamespace(settings={"animal_rule": "as given"}), notebook="x", parameters={})
+    assert "selection_file" not in sparse  # an analysis with no terminal-phase selection shows no such row
+    assert "Selection record" not in header_html(sparse)
 
 
 # ---------------------------------------------------------------------------- report tables and first page

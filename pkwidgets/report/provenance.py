@@ -180,7 +180,8 @@ def run_info(data_path, table, *, notebook, parameters, now=None, left_out=None,
     Returns
     -------
     dict
-        ``notebook``, ``data_file``, ``data_sha256``, ``selection_file``,
+        ``notebook``, ``data_file``, ``data_sha256``, ``selection_file`` (analyses with a terminal-phase
+        selection only),
         ``selection_sha256``, ``pkwidgets_version``, ``software`` (see
         :func:`software_versions`), ``date`` (ISO 8601, UTC), ``parameters``,
         ``settings``, ``caution``, and for the first page ``study``,
@@ -196,7 +197,7 @@ def run_info(data_path, table, *, notebook, parameters, now=None, left_out=None,
         **_first_page(table, left_out),
         "data_file": os.path.abspath(os.fspath(data_path)),
         "data_sha256": sha256_file(data_path),
-        **_selection_file(settings),
+        **(_selection_file(settings) if "selections" in settings else {}),  # only analyses that read one
         "pkwidgets_version": software["pkwidgets"],
         "software": software,
         "date": now.replace(microsecond=0).isoformat(),
