@@ -13,13 +13,10 @@ from __future__ import annotations
 
 import contextlib
 import json
-import os
-import signal
-import subprocess
 import sys
 from pathlib import Path
 
-from _voila import _wait_port, free_port, jupyter_env
+from _voila import free_port, jupyter_env, serving
 
 #: User settings written for the test server (plugin id -> settings).
 LAB_SETTINGS = {
@@ -67,18 +64,5 @@ def lab_server(root, state_dir, *, token="pkwlab", timeout=90):
            "--LabApp.extension_manager=readonly",
            "--LabApp.check_for_updates_class=jupyterlab.NeverCheckForUpdate",
            "--LabApp.expose_app_in_browser=True", "--LabApp.news_url=None"]
-    with open(log_path, "w") as log:
-        proc = subprocess.Popen(cmd, cwd=root, env=env, stdout=log, stderr=subprocess.STDOUT,
-                                start_new_session=True)
-        try:
-            _wait_port(port, proc, log_path, timeout)
-            yield f"http://127.0.0.1:{port}", token
-        finally:
-            try:
-                os.killpg(proc.pid, signal.SIGTERM)
-                proc.wait(timeout=15)
-            except ProcessLookupError:
-                pass
-            except subprocess.TimeoutExpired:
-                os.killpg(proc.pid, signal.SIGKILL)
-                proc.wait(timeout=15)
+    with serving(cmd, port, cwd=root, env=env, log_path=log_path, timeout=timeout):
+        yield f"http://127.0.0.1:{port}", token

@@ -75,17 +75,26 @@ def voila_server(notebook, state_dir, *, token="pkwtest", timeout=60):
         If the server exits or does not open its port in time (the message names the log file).
     """
     notebook, state_dir = Path(notebook), Path(state_dir)
-    env = jupyter_env(state_dir)
     port = free_port()
-    log_path = state_dir / "voila.log"
+    cmd = [sys.executable, "-m", "voila", str(notebook), "--no-browser", "--Voila.ip=127.0.0.1", f"--port={port}",
+           f"--token={token}"]
+    with serving(cmd, port, cwd=notebook.parent, env=jupyter_env(state_dir), log_path=state_dir / "voila.log",
+                 timeout=timeout):
+        yield f"http://127.0.0.1:{port}/?token={token}"
+
+
+@contextlib.contextmanager
+def serving(cmd, port, *, cwd, env, log_path, timeout):
+    """Run a server command in its own process group, logging to ``log_path``; return once ``port`` opens.
+
+    The process group is stopped on exit (SIGTERM, then SIGKILL after 15 s).  Raises ``RuntimeError`` naming
+    the log file when the server exits early or does not open the port within ``timeout`` seconds.
+    """
     with open(log_path, "w") as log:
-        proc = subprocess.Popen(
-            [sys.executable, "-m", "voila", str(notebook), "--no-browser", "--Voila.ip=127.0.0.1",
-             f"--port={port}", f"--token={token}"],
-            cwd=notebook.parent, env=env, stdout=log, stderr=subprocess.STDOUT, start_new_session=True)
+        proc = subprocess.Popen(cmd, cwd=cwd, env=env, stdout=log, stderr=subprocess.STDOUT, start_new_session=True)
         try:
             _wait_port(port, proc, log_path, timeout)
-            yield f"http://127.0.0.1:{port}/?token={token}"
+            yield proc
         finally:
             try:
                 os.killpg(proc.pid, signal.SIGTERM)

@@ -27,8 +27,10 @@ __all__ = ["run_analysis", "refresh_stored_outputs", "SELECTION_FILE"]
 #: Default selection record in the output folder (read by the run, kept across runs).
 SELECTION_FILE = "terminal_selection.json"
 _PATH_PARAMETERS = ("data_path", "selection_record", "pc_path", "ex_path", "plasma_path")
-#: The kernel logs errors only: its start-up notices (local TCP transport) would bury the run's one-line outcome.
-_KERNEL_ARGUMENTS = ["--IPKernelApp.log_level=ERROR"]
+#: The kernel logs critical messages only: its start-up notices (local TCP transport) and the "KeyboardInterrupt
+#: caught in kernel" logged when a failed run's kernel is interrupted at shutdown would bury the run's one-line
+#: outcome (a failed cell is reported from the executed notebook, a dead kernel by papermill).
+_KERNEL_ARGUMENTS = ["--IPKernelApp.log_level=CRITICAL"]
 
 
 def _data_files(notebook, declared, params) -> list:
