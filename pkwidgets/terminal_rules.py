@@ -34,10 +34,19 @@ Rules
     heuristic comparison here, not a likelihood test.
 ``"tail-extension"`` (this project's rule)
     Start from the last ``min_points`` (3) candidates and extend the window
-    backwards one point at a time; stop at the first run of ``run`` (4)
-    consecutive earlier points that lie off the line of the window after
-    them on the same side (all above it, or all below it; a point on the
-    line or on the other side ends a run).  A shorter run that reaches the
+    backwards one point at a time; stop at the first run of ``run`` (5)
+    consecutive earlier points that lie off the line on the same side (all
+    above it, or all below it; a point on the line or on the other side ends
+    a run).  Each point is tested against the line of the window right after
+    it, except while a run is in progress: then it is tested against the
+    anchor, the window after the run's latest point (the window as it was
+    before the run began), when that window is wide (at least
+    ``WIDE_WINDOW``, 6, points).  The window after a point already holds the
+    run's later points and tilts toward them, which hides a bend; the anchor
+    does not move until a point on the line (or on the other side) ends the
+    run.  A narrower anchor is not used: its slope error is shared by every
+    point tested against it, which makes runs out of noise.  A shorter run
+    that reaches the
     first candidate also stops it: a run below the line only when one of its
     points has :math:`r_0 < -t_{0.95,\,n-2}` (``FIRM_BELOW_LEVEL``); a run
     above it when it holds two points or more, when more than ``SHORT_TAIL``
@@ -55,33 +64,40 @@ Rules
     :math:`2\,t_{max}` while at least ``min_points`` points remain there
     (the two-tmax rule as a floor).  A point is above
     the line when its studentised prediction residual is above the one-sided
-    ``off_line_levels[0]`` (0.70) quantile, below it when the residual is
+    ``off_line_levels[0]`` (0.70) quantile (against a wide window: the
+    ``WIDE_ABOVE_LEVEL`` (0.75) quantile, or ``off_line_levels[0]`` if
+    higher), below it when the residual is
     below minus the ``off_line_levels[1]`` (0.90) quantile of Student's t
-    with :math:`n - 2` degrees of freedom.  For a window of :math:`n` points
-    and an earlier point :math:`(x_0, y_0)`, :math:`y = \ln C`:
+    with :math:`n - 2` degrees of freedom.  For a reference window of
+    :math:`n` points (the window after the point, or the anchor) and an
+    earlier point :math:`(x_0, y_0)`, :math:`y = \ln C`:
 
     .. math::
         r_0 = \frac{y_0 - \hat y(x_0)}
         {s \sqrt{1 + \frac{1}{n} + \frac{(x_0 - \bar x)^2}{S_{xx}}}}, \quad
-        \text{above if } r_0 > t_{0.70,\,n-2}, \quad
+        \text{above if } r_0 > t_{q,\,n-2}, \quad
+        q = \begin{cases} 0.70 & n < 6 \\ 0.75 & n \ge 6 \end{cases}, \quad
         \text{below if } r_0 < -t_{0.90,\,n-2}
 
     (the prediction interval of a new observation in simple linear
     regression, Draper & Smith, Applied Regression Analysis, 3rd ed., 1998,
-    ch. 3, from memory).  The rule stops where the log curve bends beyond the
+    ch. 3, from memory; :math:`s` floored at ``RESIDUAL_FLOOR``).  The rule
+    stops where the log curve bends beyond the
     window's own residual noise: distribution-phase points lie above the
     terminal line, absorption-phase points below it, so a bend gives a run on
     one side while noise gives points on both; the upper test is the more
     sensitive one, and a lone low point at the start (often the absorption
     tail of a one-compartment profile, or noise) stops the rule only when it
     is far below.  Requiring a run makes one noisy point harmless.  The
-    levels, the run length, the firm levels, ``SHORT_TAIL``, the margin and
-    its exception are our choice,
+    levels, the run length, the anchor and ``WIDE_WINDOW``, the firm levels,
+    ``SHORT_TAIL``, the margin and its exception are our choice,
     tuned on ``bench/terminal_accuracy.py`` (one- and two-compartment, IV and
-    oral, rich and sparse designs; tuned on seed 1 at 15 % residual error,
-    checked on other seeds and at 10 % and 25 %); no source.  All residuals
-    come at once from the suffix sums; one loop over the sample axis counts
-    the runs.
+    oral, rich and sparse designs; tuned at 15 % residual error, the anchor
+    on the bench's default seed, checked on other seeds and at 10 % and 25 %;
+    the anchor's variants are in ``bench/_experiment_anchor.py``); no source.  The residuals against the
+    window right after each point come at once from the suffix sums; one loop
+    over the sample axis counts the runs and recomputes, for the profiles
+    with a run in progress, the residual against its anchor.
 """
 
 from __future__ import annotations
@@ -96,8 +112,8 @@ from ._rows import first_true
 from .choices import check_choice
 
 __all__ = ["TERMINAL_RULES", "ADJ_R2_TOLERANCE", "OFF_LINE_LEVELS", "EXTENSION_RUN", "FIRM_BELOW_LEVEL",
-           "FIRM_ABOVE_LEVEL", "SHORT_TAIL", "EDGE_KEEP_RESIDUAL", "WindowStats", "choose_window", "rule_options",
-           "window_aicc"]
+           "FIRM_ABOVE_LEVEL", "SHORT_TAIL", "EDGE_KEEP_RESIDUAL", "WIDE_WINDOW", "WIDE_ABOVE_LEVEL", "WindowStats",
+           "choose_window", "rule_options", "window_aicc"]
 
 #: Automatic terminal-window rules, in the order the documentation lists them.
 TERMINAL_RULES = ("adjusted-r2", "two-tmax", "last-n", "aicc", "tail-extension")
@@ -106,7 +122,11 @@ ADJ_R2_TOLERANCE = 1e-4
 #: One-sided t levels (above, below the line) of the "tail-extension" rule's off-line test, and the
 #: run of off-line points that stops it (our choice, tuned on ``bench/terminal_accuracy.py``).
 OFF_LINE_LEVELS = (0.70, 0.90)
-EXTENSION_RUN = 4
+EXTENSION_RUN = 5
+#: A window of at least this many points is wide: it anchors the test of earlier points while a run is in progress,
+#: and its test above the line uses at least ``WIDE_ABOVE_LEVEL`` (our choice, tuned on ``bench/terminal_accuracy.py``).
+WIDE_WINDOW = 6
+WIDE_ABOVE_LEVEL = 0.75
 #: One-sided t level below the line that a short run of low points reaching the first candidate must pass at one
 #: point at least before it stops the "tail-extension" rule (our choice, tuned on ``bench/terminal_accuracy.py``).
 FIRM_BELOW_LEVEL = 0.95
@@ -211,41 +231,48 @@ def _aicc(w, *, min_points):
 RESIDUAL_FLOOR = 1e-4
 
 
-def _prediction_residuals(w, seed):
-    """Studentised prediction residual of each candidate against the window that starts after it.
+def _residual(w, row, ref, seed, cols):
+    """Studentised prediction residual of the point at ``row`` against the suffix window of row ``ref``.
 
-    Row ``i`` compares the point at sample ``i`` with the line fitted to the
-    candidates after it (the suffix window of row ``i + 1``); returns the
-    residuals and their degrees of freedom (NaN / 0 where that window has
-    fewer than ``seed`` points, and on the last row, which has no window after it).
+    For the profiles ``cols`` (a slice with ``row``, ``ref`` rows or slices of rows, or an index array with
+    ``ref`` one row per profile); returns the residuals and the window's point counts (NaN / 0 where the
+    point is no candidate or the window has fewer than ``seed`` points).
     """
-    resid, df = np.full(w.n.shape, np.nan), np.zeros(w.n.shape, dtype=np.int64)
-    if w.n.shape[0] < 2:
-        return resid, df
-    n1, sx1, sy1, cxx1, b1, sse1 = w.n[1:], w.sx[1:], w.sy[1:], w.cxx[1:], w.slope[1:], w.sse[1:]
-    candidate = w.candidate[:-1]
-    tested = candidate & (n1 >= seed)
+    n, sx, sy, cxx, b, sse = (a[ref, cols] for a in (w.n, w.sx, w.sy, w.cxx, w.slope, w.sse))
+    cand, tref = w.candidate[row, cols], w.tref[cols]
+    tested = cand & (n >= seed)
     with np.errstate(divide="ignore", invalid="ignore"):
-        x0 = np.where(candidate, w.t[:-1], w.tref) - w.tref
-        y0 = np.log(np.where(candidate, w.c[:-1], 1.0)) - w.yref
-        xbar = sx1 / n1
-        r = y0 - (sy1 / n1 + b1 * (x0 - xbar))
-        scale = np.sqrt(sse1 / (n1 - 2.0) * (1.0 + 1.0 / n1 + (x0 - xbar) ** 2 / cxx1))
+        x0 = np.where(cand, w.t[row, cols], tref) - tref
+        y0 = np.log(np.where(cand, w.c[row, cols], 1.0)) - w.yref[cols]
+        xbar = sx / n
+        r = y0 - (sy / n + b * (x0 - xbar))
+        scale = np.sqrt(sse / (n - 2.0) * (1.0 + 1.0 / n + (x0 - xbar) ** 2 / cxx))
         r = r / np.maximum(scale, RESIDUAL_FLOOR)
-    resid[:-1] = np.where(tested, r, np.nan)
-    df[:-1] = np.where(tested, n1 - 2, 0)
-    return resid, df
+    return np.where(tested, r, np.nan), np.where(tested, n, 0).astype(np.intp)
 
 
-def _off_line(w, levels, seed):
-    """Off-line masks of the candidates (above, below, firm below, firm above) and their residuals."""
-    resid, df = _prediction_residuals(w, seed)
-    dfs = np.arange(1, w.n.shape[0] + 1)
-    k, tested = np.maximum(df, 1) - 1, df > 0
-    quantiles = (levels[0], levels[1], max(levels[1], FIRM_BELOW_LEVEL), max(levels[0], FIRM_ABOVE_LEVEL))
-    t_up, t_lo, t_firm, t_firm_up = (np.take(stats.t.ppf(q, dfs), k) for q in quantiles)
-    masks = (resid > t_up, resid < -t_lo, resid < -t_firm, resid > t_firm_up)
-    return tuple(tested & m for m in masks), resid
+def _bounds(levels, rows):
+    """t quantiles indexed by a window's point count n (df n - 2): above (narrow, wide), below, firm below, above."""
+    dfs = np.maximum(np.arange(rows + 2) - 2, 1)
+    quantiles = (levels[0], max(levels[0], WIDE_ABOVE_LEVEL), levels[1], max(levels[1], FIRM_BELOW_LEVEL),
+                 max(levels[0], FIRM_ABOVE_LEVEL))
+    return tuple(stats.t.ppf(q, dfs) for q in quantiles)
+
+
+def _classify(r, n, bounds):
+    """Masks (above, below, firm below, firm above) of residuals ``r`` against windows of ``n`` points."""
+    up_narrow, up_wide, lo, firm_lo, firm_up = (b[n] for b in bounds)
+    with np.errstate(invalid="ignore"):  # NaN (not tested) is off the line on no side
+        return r > np.where(n >= WIDE_WINDOW, up_wide, up_narrow), r < -lo, r < -firm_lo, r > firm_up
+
+
+def _off_line(w, bounds, seed):
+    """Masks of every candidate against the window right after it (none on the last row); arrays (rows, profiles)."""
+    R = w.n.shape[0]
+    r, n = np.full(w.n.shape, np.nan), np.zeros(w.n.shape, dtype=np.intp)
+    if R > 1:
+        r[:-1], n[:-1] = _residual(w, slice(0, R - 1), slice(1, R), seed, slice(None))
+    return _classify(r, n, bounds)
 
 
 def _next_candidate(w, row):
@@ -253,40 +280,55 @@ def _next_candidate(w, row):
     return _first_row(w.candidate & (np.arange(w.n.shape[0])[:, None] > row))
 
 
-def _bend_cut(above, below, firm_below, firm_above, candidate, run):
+def _bend_cut(w, levels, run, seed):
     """Latest row of the first one-sided run of ``run`` off-line candidates met going backwards (-1: none).
 
-    Points above and points below the line count in separate runs (a point on the other side or on the
-    line ends a run).  A shorter run that reaches the first candidate stops the rule too: below the line
-    only when one of its points is below the firm bound; above it when it holds two points or more, when
-    more than ``SHORT_TAIL`` candidates follow it, or when its one point is above the firm bound.
+    Also returns whether that run lies above the line.  Points above and points below the line count in
+    separate runs (a point on the other side or on the line ends a run); while a run is in progress, each
+    earlier point is tested against the window after the run's latest point (the anchor) when that window is
+    wide, else against the window right after it.  A shorter run that reaches the first candidate stops the
+    rule too: below the line only when one of its points is below the firm bound; above it when it holds two
+    points or more, when more than ``SHORT_TAIL`` candidates follow it, or when its one point is above the
+    firm bound.
     """
-    P = above.shape[1]
+    P, bounds = w.n.shape[1], _bounds(levels, w.n.shape[0])
+    off = _off_line(w, bounds, seed)  # against the window right after each point; anchored tests replace some
     n_up, n_lo, top_up, top_lo = np.zeros(P, np.int64), np.zeros(P, np.int64), np.full(P, -1), np.full(P, -1)
-    firm, cut, done = np.zeros(P, dtype=bool), np.full(P, -1), np.zeros(P, dtype=bool)
-    for i in range(above.shape[0] - 1, -1, -1):  # backwards over samples, all profiles at once
-        active = candidate[i] & ~done
-        up, lo = above[i] & active, below[i] & active
+    firm, lone_firm, done, cut = np.zeros(P, bool), np.zeros(P, bool), np.zeros(P, bool), np.full(P, -1)
+    for i in range(w.n.shape[0] - 1, -1, -1):  # backwards over samples, all profiles at once
+        on = np.flatnonzero(((n_up > 0) | (n_lo > 0)) & ~done)  # a run in progress: the window before it ...
+        anchor = np.where(n_up[on] > 0, top_up[on], top_lo[on]) + 1
+        wide = w.n[anchor, on] >= WIDE_WINDOW  # ... is the anchor when it is wide
+        on, anchor = on[wide], anchor[wide]
+        if on.size:
+            for m, sub in zip(off, _classify(*_residual(w, i, anchor, seed, on), bounds)):
+                m[i, on] = sub
+        above, below, firm_below, firm_above = (m[i] for m in off)
+        active = w.candidate[i] & ~done
+        up, lo = above & active, below & active
+        lone_firm = np.where(up & (n_up == 0), firm_above, lone_firm)
         top_up, top_lo = np.where(up & (n_up == 0), i, top_up), np.where(lo & (n_lo == 0), i, top_lo)
-        firm = np.where(lo, (firm & (n_lo > 0)) | firm_below[i], firm)
+        firm = np.where(lo, (firm & (n_lo > 0)) | firm_below, firm)
         n_up = np.where(up, n_up + 1, np.where(active, 0, n_up))
         n_lo = np.where(lo, n_lo + 1, np.where(active, 0, n_lo))
         hit_up, hit_lo = active & (n_up >= run), active & (n_lo >= run)
         cut, done = np.where(hit_up, top_up, np.where(hit_lo, top_lo, cut)), done | hit_up | hit_lo
     # a shorter run reaching the first candidate; a lone point above needs the firm bound when few points follow
-    sure_up = (n_up > 1) | (candidate.sum(axis=0) > SHORT_TAIL + 1) | _at(firm_above, np.maximum(top_up, 0))
+    sure_up = (n_up > 1) | (w.candidate.sum(axis=0) > SHORT_TAIL + 1) | lone_firm
     end_up, end_lo = ~done & (n_up > 0) & sure_up, ~done & (n_lo > 0) & firm
-    return np.where(end_up, top_up, np.where(end_lo, top_lo, cut))
+    cut_up = np.where(done, n_up >= run, end_up)
+    return np.where(end_up, top_up, np.where(end_lo, top_lo, cut)), cut_up
 
 
 def _tail_extension(w, *, min_points, off_line_levels, run, tmax):
     seed = max(int(min_points), 3)
-    (above, below, firm_below, firm_above), resid = _off_line(w, off_line_levels, seed)
-    cut = _bend_cut(above, below, firm_below, firm_above, w.candidate, run)
+    cut, cut_up = _bend_cut(w, off_line_levels, run, seed)
     start, has = _next_candidate(w, cut)
     margin, _ = _next_candidate(w, start)  # after a bend, its edge point stays out as well ...
-    with np.errstate(invalid="ignore"):  # ... unless the bend is above the line and the edge point far below it
-        kept = _at(above, np.maximum(cut, 0)) & (_at(resid, start) < EDGE_KEEP_RESIDUAL)
+    after = np.minimum(start + 1, w.n.shape[0] - 1)  # ... unless the bend is above the line and the edge point is
+    edge, _ = _residual(w, start, after, seed, np.arange(w.n.shape[1]))  # far below the window after it
+    with np.errstate(invalid="ignore"):
+        kept = cut_up & (start + 1 < w.n.shape[0]) & (edge < EDGE_KEEP_RESIDUAL)
     start = np.where((cut >= 0) & (_at(w.n, start) > seed) & ~kept, margin, start)
     if tmax is not None:  # extravascular: not before 2 x TMAX while enough points remain
         with np.errstate(invalid="ignore"):
