@@ -94,6 +94,13 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 import terminal_accuracy as ta  # noqa: E402
 from pkwidgets import terminal_rules as tr  # noqa: E402
+
+#: The rule these variants replace and call into: "today" in the notes is the default rule of this commit.
+MEASURED_AT = "698a96f"
+if not hasattr(tr, "_prediction_residuals"):
+    sys.exit(f"bench/_experiment_cusum.py calls the tail-extension internals of commit {MEASURED_AT}, which the "
+             f"anchored rule replaced; run it in a worktree of that commit (git worktree add /tmp/cusum "
+             f"{MEASURED_AT}) with this file copied into its bench/ folder.")
 from pkwidgets.lambda_z import fit_lambda_z  # noqa: E402
 
 MODELS = ("1-cmt IV bolus", "1-cmt oral", "2-cmt IV bolus", "2-cmt oral")

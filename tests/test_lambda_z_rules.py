@@ -23,8 +23,9 @@ from statsmodels.tools.eval_measures import aicc
 
 from pkwidgets.lambda_z import fit_lambda_z, fit_lambda_z_profiles_major, fit_lambda_z_samples_major
 from pkwidgets import terminal_rules
-from pkwidgets.terminal_rules import (EDGE_KEEP_RESIDUAL, EXTENSION_RUN, FIRM_ABOVE_LEVEL, FIRM_BELOW_LEVEL,
-                                      OFF_LINE_LEVELS, SHORT_TAIL, TERMINAL_RULES, window_aicc)
+from pkwidgets.terminal_rules import TERMINAL_RULES, window_aicc
+# the loop reference of the default rule, written from its definition (see that module's docstring)
+from test_terminal_rules_anchor import _reference as tail_extension_reference
 
 ROOT = Path(__file__).resolve().parents[1]
 #: The commit before the rules were added: its lambda_z.py is the bit-for-bit reference.
@@ -201,57 +202,6 @@ def test_two_tmax_and_last_n_take_the_defined_points():
         assert np.flatnonzero(last.used[:, p]).tolist() == idx.tolist()
 
 
-def _studentised(t, c, point, after):
-    """Prediction residual of ``point`` against the least-squares line of the points ``after`` (linregress)."""
-    r = stats.linregress(t[after], np.log(c[after]))
-    n, x0 = len(after), t[point]
-    resid = np.log(c[point]) - (r.intercept + r.slope * x0)
-    s = np.sqrt(np.sum((np.log(c[after]) - r.intercept - r.slope * t[after]) ** 2) / (n - 2))
-    sxx = np.sum((t[after] - t[after].mean()) ** 2)
-    return resid / (s * np.sqrt(1 + 1 / n + (x0 - t[after].mean()) ** 2 / sxx)), n
-
-
-def _tail_extension_reference(t, c, cand, levels=OFF_LINE_LEVELS, run=EXTENSION_RUN, tmax=None):
-    """Slow reference written from the rule's definition (pkwidgets.terminal_rules docstring)."""
-    idx = np.flatnonzero(cand)
-    streak, side, top, firm, cut, studs = 0, 0, None, False, None, {}
-    for j in range(len(idx) - 4, -1, -1):
-        stud, n = _studentised(t, c, idx[j], idx[j + 1:])
-        studs[j] = stud
-        here = 1 if stud > stats.t.ppf(levels[0], n - 2) else -1 if stud < -stats.t.ppf(levels[1], n - 2) else 0
-        if here == 0 or here != side:  # a point on the line or on the other side ends the run
-            streak, side, top, firm = 0, here, j, False
-        streak += here != 0
-        firm = firm or (stud < -stats.t.ppf(max(levels[1], FIRM_BELOW_LEVEL), n - 2) if here < 0 else
-                        stud > stats.t.ppf(max(levels[0], FIRM_ABOVE_LEVEL), n - 2))
-        if streak >= run:
-            cut = top
-            break
-    else:  # a shorter run reaching the first candidate: below only when firm; above unless a lone, weak point
-        sure_up = streak > 1 or len(idx) - 1 > SHORT_TAIL or firm
-        cut = top if streak > 0 and (sure_up if side > 0 else firm) else None
-    window = idx[(cut + 1 if cut is not None else 0):]
-    edge_kept = cut is not None and side > 0 and studs.get(cut + 1, np.inf) < EDGE_KEEP_RESIDUAL
-    if cut is not None and len(window) > 3 and not edge_kept:  # one-point margin after a bend
-        window = window[1:]
-    if tmax is not None and (t[window] >= 2 * tmax).sum() >= 3:  # floor at 2 x TMAX
-        window = window[t[window] >= 2 * tmax]
-    ok = len(window) >= 3 and stats.linregress(t[window], np.log(c[window])).slope < 0
-    return window if ok else np.array([], dtype=int)
-
-
-@pytest.mark.parametrize("levels, run, with_tmax", [
-    (OFF_LINE_LEVELS, EXTENSION_RUN, False), (OFF_LINE_LEVELS, EXTENSION_RUN, True), ((0.9, 0.9), 1, False),
-    ((0.6, 0.95), 2, True)])
-def test_tail_extension_matches_its_loop_reference(levels, run, with_tmax):
-    t, c, cand, _ = _noisy_profiles(23, n_prof=120)
-    tmax = np.random.default_rng(4).choice([0.5, 1.0, 3.0, 8.0], t.shape[1]) if with_tmax else None
-    fit = fit_lambda_z(t, c, cand, False, axis=0, rule="tail-extension", off_line_levels=levels, run=run, tmax=tmax)
-    for p in range(t.shape[1]):
-        ref = _tail_extension_reference(t[:, p], c[:, p], cand[:, p], levels, run, None if tmax is None else tmax[p])
-        assert np.flatnonzero(fit.used[:, p]).tolist() == ref.tolist()
-
-
 def test_tail_extension_short_tails_match_the_loop_reference(monkeypatch):
     # sparse tails (5 or 6 candidates) reach the lone-point and edge-point branches of the rule's definition
     rng = np.random.default_rng(29)
@@ -260,7 +210,7 @@ def test_tail_extension_short_tails_match_the_loop_reference(monkeypatch):
     cand = np.arange(8)[:, None] >= rng.choice([2, 3], 400)
     fit = fit_lambda_z(t, c, cand, False, axis=0, rule="tail-extension")
     for p in range(t.shape[1]):
-        ref = _tail_extension_reference(t[:, p], c[:, p], cand[:, p])
+        ref = tail_extension_reference(t[:, p], c[:, p], cand[:, p])
         assert np.flatnonzero(fit.used[:, p]).tolist() == ref.tolist()
     monkeypatch.setattr(terminal_rules, "SHORT_TAIL", 0)  # the lone-point exception is taken on these data
     assert (fit_lambda_z(t, c, cand, False, axis=0, rule="tail-extension").npoints != fit.npoints).any()

@@ -32,10 +32,11 @@ _LAMBDA_Z = {
     "last-n": "the last n points after CMAX",
     "aicc": "the window with the lowest small-sample Akaike criterion (at least 4 points)",
     "tail-extension": "the last 3 points after CMAX, extended backwards while earlier points stay on the "
-                      "line within its own prediction noise (a run of 4 points on one side of the line stops it, a "
-                      "shorter run at the start only when clearly off the line; the edge point of the bend "
-                      "stays out unless far below the line; not before 2 x TMAX for extravascular doses); "
-                      "pkwidgets' own rule, measured in bench/terminal_accuracy.py",
+                      "line within its own prediction noise (a run of 5 points on one side of the line stops it, "
+                      "tested against the window before the run once that window has 6 points; a shorter run at "
+                      "the start only when clearly off the line; the edge point of the bend stays out unless far "
+                      "below the line; not before 2 x TMAX for extravascular doses); pkwidgets' own rule, "
+                      "measured in bench/terminal_accuracy.py",
 }
 #: Reviewer-check threshold -> (sentence, source).
 QC_SOURCES = {
