@@ -36,7 +36,7 @@ import pandas as pd
 
 from .design_curves import concentration, exact_values
 from .design_models import CompartmentModel, draw_subjects
-from .engine import nca_arrays
+from .engine import chunk_threads, nca_arrays
 
 __all__ = ["VirtualStudy", "simulate_profiles", "ScheduleEvaluation", "evaluate_schedule",
            "evaluate_schedule_dask", "DESIGN_CODES"]
@@ -169,7 +169,8 @@ def _block_schedule(model, times, block, size, s_index, entropy, options):
     subjects = draw_subjects(model, size, np.random.default_rng(np.random.SeedSequence(entropy, spawn_key=(block, 0))))
     rng = np.random.default_rng(np.random.SeedSequence(entropy, spawn_key=(block, s_index + 1)))
     obs, blq, _ = _observe(model, subjects, times, rng, keep_true=False)
-    res = nca_arrays(np.broadcast_to(times, obs.shape), obs, blq=blq, **_engine_options(model), **options)
+    with chunk_threads(1):  # the blocks already run in parallel
+        res = nca_arrays(np.broadcast_to(times, obs.shape), obs, blq=blq, **_engine_options(model), **options)
     exact = exact_values(model, subjects, t_last=res["TLST"])
     codes = DESIGN_CODES + (("AUCTAU",) if model.tau is not None else ())
     errors = {code: _relative_errors(res[code], exact[code]) for code in codes}

@@ -31,6 +31,7 @@ its own module taking and returning named structures:
 
 from __future__ import annotations
 
+import contextlib
 import math
 import os
 import threading
@@ -62,6 +63,23 @@ __all__ = ["nca_arrays", "ArrayResult", "ROUTES", "SampleValueError"]
 CHUNK = 8192
 #: Threads over chunks (NumPy releases the GIL inside its loops); None = all cores.
 THREADS = None
+_LOCAL = threading.local()
+
+
+@contextlib.contextmanager
+def chunk_threads(n):
+    """Within the block, :func:`nca_arrays` calls made by this thread use ``n`` threads over chunks.
+
+    For callers that already run engine calls in parallel (``evaluate_schedule`` runs blocks of subjects on a
+    thread pool): one thread per call there avoids two levels of threads contending for the cores and the GIL
+    (measured with ``bench/design_speed.py``).  Results do not depend on it.
+    """
+    before = getattr(_LOCAL, "threads", None)
+    _LOCAL.threads = n
+    try:
+        yield
+    finally:
+        _LOCAL.threads = before
 
 
 class ArrayResult(dict):
@@ -280,7 +298,7 @@ def _run_chunks(run, P):
         whole.lambda_z_used[sl] = piece.lambda_z_used
 
     starts = range(0, P, CHUNK)
-    workers = max(1, min(THREADS or os.cpu_count() or 1, len(starts)))
+    workers = max(1, min(getattr(_LOCAL, "threads", None) or THREADS or os.cpu_count() or 1, len(starts)))
     if workers == 1:
         for s in starts:
             work(s)

@@ -103,6 +103,7 @@ Rules
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import lru_cache
 from numbers import Integral, Real
 
 import numpy as np
@@ -252,18 +253,30 @@ def _residual(w, row, ref, seed, cols):
 
 
 def _bounds(levels, rows):
-    """t quantiles indexed by a window's point count n (df n - 2): above (narrow, wide), below, firm below, above."""
-    dfs = np.maximum(np.arange(rows + 2) - 2, 1)
+    """Off-line bounds indexed by a window's point count n (t quantiles with df n - 2): above the line (the wide
+    level from ``WIDE_WINDOW`` points on), below it (negated), firm below (negated), firm above."""
     quantiles = (levels[0], max(levels[0], WIDE_ABOVE_LEVEL), levels[1], max(levels[1], FIRM_BELOW_LEVEL),
                  max(levels[0], FIRM_ABOVE_LEVEL))
-    return tuple(stats.t.ppf(q, dfs) for q in quantiles)
+    return _t_table(tuple(float(q) for q in quantiles), int(rows), WIDE_WINDOW)
+
+
+@lru_cache(maxsize=64)
+def _t_table(quantiles, rows, wide):
+    """The tables of :func:`_bounds` for n = 0 ... rows + 1, df = max(n - 2, 1), from ``scipy.stats.t.ppf``
+    (computed once per chunk shape and levels: the same numbers as a call per chunk).  Read-only arrays."""
+    dfs = np.maximum(np.arange(rows + 2) - 2, 1)
+    up_narrow, up_wide, lo, firm_lo, firm_up = (stats.t.ppf(q, dfs) for q in quantiles)
+    tables = (np.where(np.arange(rows + 2) >= wide, up_wide, up_narrow), -lo, -firm_lo, firm_up)
+    for table in tables:
+        table.flags.writeable = False
+    return tables
 
 
 def _classify(r, n, bounds):
     """Masks (above, below, firm below, firm above) of residuals ``r`` against windows of ``n`` points."""
-    up_narrow, up_wide, lo, firm_lo, firm_up = (b[n] for b in bounds)
+    up, neg_lo, neg_firm_lo, firm_up = (b[n] for b in bounds)
     with np.errstate(invalid="ignore"):  # NaN (not tested) is off the line on no side
-        return r > np.where(n >= WIDE_WINDOW, up_wide, up_narrow), r < -lo, r < -firm_lo, r > firm_up
+        return r > up, r < neg_lo, r < neg_firm_lo, r > firm_up
 
 
 def _off_line(w, bounds, seed):
@@ -325,10 +338,10 @@ def _tail_extension(w, *, min_points, off_line_levels, run, tmax):
     cut, cut_up = _bend_cut(w, off_line_levels, run, seed)
     start, has = _next_candidate(w, cut)
     margin, _ = _next_candidate(w, start)  # after a bend, its edge point stays out as well ...
-    after = np.minimum(start + 1, w.n.shape[0] - 1)  # ... unless the bend is above the line and the edge point is
-    edge, _ = _residual(w, start, after, seed, np.arange(w.n.shape[1]))  # far below the window after it
+    # ... unless the bend is above the line and the edge point is far below the window after it
+    kept, on = np.zeros(w.n.shape[1], dtype=bool), np.flatnonzero(cut_up & (start + 1 < w.n.shape[0]))
     with np.errstate(invalid="ignore"):
-        kept = cut_up & (start + 1 < w.n.shape[0]) & (edge < EDGE_KEEP_RESIDUAL)
+        kept[on] = _residual(w, start[on], start[on] + 1, seed, on)[0] < EDGE_KEEP_RESIDUAL
     start = np.where((cut >= 0) & (_at(w.n, start) > seed) & ~kept, margin, start)
     if tmax is not None:  # extravascular: not before 2 x TMAX while enough points remain
         with np.errstate(invalid="ignore"):

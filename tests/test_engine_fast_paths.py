@@ -95,3 +95,38 @@ def test_heap_settings_change_no_result_and_can_be_switched_off():
     if os.confstr("CS_GNU_LIBC_VERSION").startswith("glibc"):
         assert kept
 
+
+
+def test_thread_settings_and_cached_t_tables_change_no_result():
+    """Threads over chunks (``engine.chunk_threads``) change no result, and the per-thread setting is restored;
+    the terminal rule's cached bound tables equal ``scipy.stats.t.ppf`` (SciPy) level by level."""
+    import threading
+
+    from pkwidgets import engine, nca_arrays, terminal_rules
+
+    rng = np.random.default_rng(11)
+    t = np.array([0.5, 1, 2, 4, 6, 8, 12, 24.0]) * np.ones((3 * engine.CHUNK // 2, 1))  # two chunks
+    c = 10 * np.exp(-0.1 * t) * np.exp(rng.normal(0, 0.1, t.shape))
+    default = nca_arrays(t, c, dose=100)
+    seen = []
+
+    def one_thread():
+        with engine.chunk_threads(1):
+            seen.append(nca_arrays(t, c, dose=100))
+        seen.append(getattr(engine._LOCAL, "threads", None))
+
+    worker = threading.Thread(target=one_thread)
+    worker.start()
+    worker.join()
+    assert seen[1] is None  # restored
+    for code in default:
+        np.testing.assert_array_equal(seen[0][code], default[code])
+    up, neg_lo, neg_firm_lo, firm_up = terminal_rules._bounds((0.7, 0.9), 12)
+    n = np.arange(14)
+    df = np.maximum(n - 2, 1)
+    wide = n >= terminal_rules.WIDE_WINDOW
+    np.testing.assert_array_equal(up, np.where(wide, stats.t.ppf(max(0.7, terminal_rules.WIDE_ABOVE_LEVEL), df),
+                                               stats.t.ppf(0.7, df)))
+    np.testing.assert_array_equal(-neg_lo, stats.t.ppf(0.9, df))
+    np.testing.assert_array_equal(firm_up, stats.t.ppf(max(0.7, terminal_rules.FIRM_ABOVE_LEVEL), df))
+    assert not up.flags.writeable  # shared between chunks: read-only
