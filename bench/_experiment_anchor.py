@@ -49,8 +49,8 @@ ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 sys.path.insert(0, str(ROOT / "bench"))
 from pkwidgets import terminal_rules as tr  # noqa: E402
-from pkwidgets.lambda_z import _assemble, _window_stats, fit_lambda_z  # noqa: E402
-from terminal_accuracy import DESIGNS, RUV, candidates, score, simulate  # noqa: E402
+from pkwidgets.lambda_z import _assemble, _window_stats  # noqa: E402
+from terminal_accuracy import DESIGNS, RUV, candidates, oracle_fit, score, simulate  # noqa: E402
 
 MODELS = ("1-cmt IV bolus", "1-cmt oral", "2-cmt IV bolus", "2-cmt oral")
 
@@ -172,10 +172,7 @@ def scenarios(seed, n, ruv):
             t, c, true_rate, in_phase = simulate(rng, model, design, n, ruv)
             oral = model.endswith("oral")
             cand, tmax = candidates(t, c, oral)
-            oracle_cand = cand & in_phase
-            oracle_first = np.where(oracle_cand.any(0), t[np.argmax(oracle_cand, 0), np.arange(n)], np.inf)
-            oracle = fit_lambda_z(t, c, oracle_cand, True, axis=0)
-            oracle.lamz = np.where(oracle.npoints >= 3, oracle.lamz, np.nan)
+            oracle, oracle_first = oracle_fit(t, c, cand, in_phase)
             w = _window_stats(t, c, cand)
             out.append(dict(name=f"{model}, {design}", t=t, w=w, true=true_rate, first=oracle_first,
                             tmax=tmax if oral else None, oracle=score(oracle, true_rate, oracle_first)))

@@ -133,14 +133,20 @@ def score(fit, true_rate, oracle_first):
     return {"median": q[0], "p90": q[1], "early": early.mean() if ok.any() else np.nan, "none": 1 - ok.mean()}
 
 
+def oracle_fit(t, c, cand, in_phase):
+    """The oracle's fit (exactly the candidates in the terminal phase; no fit below 3 points) and its first time."""
+    oracle_cand = cand & in_phase
+    first = np.where(oracle_cand.any(0), t[np.argmax(oracle_cand, 0), np.arange(t.shape[1])], np.inf)
+    oracle = fit_lambda_z(t, c, oracle_cand, True, axis=0)
+    oracle.lamz = np.where(oracle.npoints >= 3, oracle.lamz, np.nan)
+    return oracle, first
+
+
 def run_scenario(rng, model, design, n, rules, ruv=RUV):
     t, c, true_rate, in_phase = simulate(rng, model, design, n, ruv)
     oral = model.endswith("oral")
     cand, tmax = candidates(t, c, oral)
-    oracle_cand = cand & in_phase
-    oracle_first = np.where(oracle_cand.any(0), t[np.argmax(oracle_cand, 0), np.arange(n)], np.inf)
-    oracle = fit_lambda_z(t, c, oracle_cand, True, axis=0)
-    oracle.lamz = np.where(oracle.npoints >= 3, oracle.lamz, np.nan)
+    oracle, oracle_first = oracle_fit(t, c, cand, in_phase)
     rows = {"oracle": score(oracle, true_rate, oracle_first)}
     for rule in rules:
         # TMAX goes to every rule for oral dosing and to "two-tmax" always (it requires it)
