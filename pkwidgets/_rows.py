@@ -19,6 +19,17 @@ def _row_type(M):
     return np.int8 if M < 127 else np.int16 if M < 32767 else np.intp
 
 
+def _top_weight(mask, weights):
+    """Per column, the largest of ``weights`` (one small positive integer per row) over the True rows; 0 where none.
+
+    A mask times the row weights in a small integer type and a maximum down the rows: a contiguous reduction.
+    """
+    M = mask.shape[0]
+    kind = _row_type(M)
+    column = np.asarray(weights, dtype=kind)[(slice(None),) + (None,) * (mask.ndim - 1)]
+    return np.multiply(mask, column, dtype=kind).max(axis=0)
+
+
 def first_true(mask):
     """``np.argmax(mask, axis=0)``: the first True row of each column, 0 where there is none.
 
@@ -30,9 +41,7 @@ def first_true(mask):
     M = mask.shape[0]
     if M == 0:
         return np.argmax(mask, axis=0)
-    kind = _row_type(M)
-    top = np.multiply(mask, np.arange(M, 0, -1, dtype=kind)[(slice(None),) + (None,) * (mask.ndim - 1)],
-                      dtype=kind).max(axis=0)  # M - first True row; 0 where none
+    top = _top_weight(mask, np.arange(M, 0, -1))  # M - first True row; 0 where none
     out = np.subtract(M, top, dtype=np.intp)
     out[top == 0] = 0
     return out
@@ -49,9 +58,7 @@ def last_true(mask):
     M = mask.shape[0]
     if M == 0:
         return M - 1 - np.argmax(mask[::-1], axis=0)
-    kind = _row_type(M)
-    top = np.multiply(mask, np.arange(1, M + 1, dtype=kind)[(slice(None),) + (None,) * (mask.ndim - 1)],
-                      dtype=kind).max(axis=0)  # last True row + 1; 0 where none
+    top = _top_weight(mask, np.arange(1, M + 1))  # last True row + 1; 0 where none
     out = np.subtract(top, 1, dtype=np.intp)
     out[top == 0] = M - 1
     return out

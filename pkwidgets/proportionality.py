@@ -22,7 +22,6 @@ from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
-from scipy import stats
 
 from .errors import InputDataError
 from .result import parameters_of

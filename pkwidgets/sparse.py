@@ -195,7 +195,7 @@ def nca_sparse(data, *, group, time, conc, animal=None, lloq=None, units=None, b
         rows.append(dict(zip(group, key)) | res)
         means.append(mp.assign(**dict(zip(group, key))))
         flags += [[*key, f, d] for f, d in fl]
-    settings = dict(group=group, columns=dict(time=time, conc=conc, animal=animal, lloq=lloq), units=units,
+    settings = dict(analysis="sparse", group=group, columns=dict(time=time, conc=conc, animal=animal, lloq=lloq), units=units,
                     blq=blq, dose_time_conc=dose_time_conc, ci_level=float(ci_level), ci_method=ci_method,
                     animal_rule="as given" if animal else "every row a different animal",
                     method="Bailer (1988) linear-trapezoid AUC of the mean profile; normal-quantile interval"

@@ -139,7 +139,7 @@ def nca_urine(data, *, by, start, end, conc, volume, units, dose=None, plasma=No
                       100.0 * params["RCAMINT"] / (dose_p * u.dose_factor))
     if plasma is not None:
         _renal(params, iv, by, plasma, plasma_auc, plasma_interval, u.clr_factor, flags, missing)
-    settings = dict(by=by, columns=dict(start=start, end=end, conc=conc, volume=volume, dose=dose),
+    settings = dict(analysis="urine", by=by, columns=dict(start=start, end=end, conc=conc, volume=volume, dose=dose),
                     units=dict(u.declared), route=route, blq=blq, missing=missing, terminal=terminal,
                     plasma_auc=plasma_auc if plasma is not None else None,
                     plasma_interval=(list(plasma_interval) if plasma_interval is not None else

@@ -143,7 +143,7 @@ def test_run_info_pins_data_and_selection_files_and_software(tmp_path):
     assert info["software"]["numpy"] == numpy.__version__ and info["software"]["python"] == platform.python_version()
     none = run_info(data, SimpleNamespace(settings={"selections": None}), notebook="x", parameters={})
     assert none["selection_file"] is None and none["selection_sha256"] is None
-    sparse = run_info(data, SimpleNamespace(settings={"animal_rule": "as given"}), notebook="x", parameters={})
+    sparse = run_info(data, SimpleNamespace(settings={"analysis": "sparse"}), notebook="x", parameters={})
     assert "selection_file" not in sparse  # an analysis with no terminal-phase selection shows no such row
     assert "Selection record" not in header_html(sparse)
 
@@ -240,8 +240,8 @@ def test_first_page_rules_of_sparse_and_urine_runs_state_their_own_methods():
     sparse = dict(rules_in_words(pk.nca_sparse(small, group="grp", time="time", conc="conc").settings))
     assert "Bailer" in sparse["Area rule"] and "95 %" in sparse["Interval"]
     assert "Route" not in sparse and "Terminal phase (λz)" not in sparse
-    urine = dict(rules_in_words({"route": "extravascular", "plasma_auc": "AUCLST", "terminal": [4, 24],
-                                 "rules": "BLQ amount 0"}))
+    urine = dict(rules_in_words({"analysis": "urine", "route": "extravascular", "plasma_auc": "AUCLST",
+                                 "terminal": [4, 24], "rules": "BLQ amount 0"}))
     assert "from 4 to 24" in urine["Terminal phase (λz)"] and "BLQ amount 0" in urine["Collection rules"]
     assert "Area rule" not in urine
 

@@ -17,7 +17,6 @@ import pandas as pd
 import pytest
 
 import pkwidgets as pk
-from pkwidgets.summary import summarize
 from pkwidgets.workbook import SHEETS, header_text, write_workbook
 
 openpyxl = pytest.importorskip("openpyxl")

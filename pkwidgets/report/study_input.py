@@ -17,7 +17,6 @@ import os
 import warnings
 from dataclasses import dataclass, field
 
-import pandas as pd
 
 __all__ = ["DATA_FORMATS", "SDTM_ROLES", "StudyInput", "read_study", "input_tables", "input_exports",
            "input_info", "write_sdtm_outputs"]

@@ -77,10 +77,8 @@ def rules_in_words(settings) -> list:
     >>> dict(rules_in_words({"route": "iv-bolus", "auc_method": "linear"}))["Area rule"]
     'linear trapezoidal rule throughout (AUC and AUMC).'
     """
-    if "animal_rule" in settings:
-        return _sparse_rules(settings)
-    if "plasma_auc" in settings:
-        return _urine_rules(settings)
+    if settings.get("analysis") in _OWN_RULES:  # an analysis with rules of its own (sparse sampling, urine)
+        return _OWN_RULES[settings["analysis"]](settings)
     options = settings.get("options") or {}
     route = settings.get("route") or options.get("route")
     out = [("Route", _ROUTES.get(route, str(route)) + ".")]
@@ -136,6 +134,10 @@ def _urine_rules(settings) -> list:
         ("Renal clearance", f"amount excreted / plasma {settings.get('plasma_auc')} over the same interval "
                             "(when plasma data are given)."),
     ]
+
+
+#: ``settings["analysis"]`` of a result -> the rules of that analysis in words.
+_OWN_RULES = {"sparse": _sparse_rules, "urine": _urine_rules}
 
 
 def run_counts(result, left_out=None) -> dict:
