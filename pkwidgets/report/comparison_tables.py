@@ -91,13 +91,15 @@ def proportionality_table(table, *, sig=3):
     return [shown] + [Caption(f"{p}: {c}") for p, c in zip(table["parameter"], table["conclusion"])]
 
 
-def listing_table(frame, empty, *, keys=(), caption="", sig=3, index=None):
+def listing_table(frame, empty, *, keys=(), caption="", sig=3, index=None, units=None):
     """A listing (values not used, incomplete subjects, an ANOVA table) or the words ``empty`` when it has no row.
 
     ``index``: name of a first column made from the frame's index (e.g. ``"term"`` for an ANOVA table);
-    None leaves the index out (row labels carry no information a column does not).
+    None leaves the index out (row labels carry no information a column does not).  ``units``: column -> unit,
+    shown in the headers.
     """
     if not len(frame):
         return Caption(empty)
     frame = frame.reset_index(names=index) if index else frame.reset_index(drop=True)
-    return report_table(frame, keys=[k for k in keys if k in frame.columns], sort=False, sig=sig, caption=caption)
+    return report_table(frame, keys=[k for k in keys if k in frame.columns], sort=False, sig=sig, caption=caption,
+                        units=units)
